@@ -48,7 +48,7 @@ _EXPORTS: dict[str, str] = {
     "run_job": "lwrad.jobs",
 }
 
-_SUBMODULES = {"estimate", "constants", "units", "testing", "plots", "io", "magnets", "engine"}
+_SUBMODULES = {"estimate", "special", "constants", "units", "testing", "plots", "io", "magnets", "engine"}
 
 __all__ = ["__version__", "InputError", "ConvergenceWarning", "ConvergenceError", *_EXPORTS]
 
