@@ -1,0 +1,130 @@
+"""The work of one chunk: a small, picklable description and the function that does it.
+
+A job is cut into chunks of consecutive pixels (row-major over the
+observer's ``(ny, nx)``), separately for each study and each *group* of
+quantities computed by one solver call:
+
+==========  ====================================================  ==========================
+group       solver call                                           payload (checkpointed)
+==========  ====================================================  ==========================
+spectra     ``radiate(source, observer.take(chunk), E, n_jobs=1)``  the ``Result``
+power       ``power_density(source, observer.take(chunk), I)``      ``{"power_density": ...}``
+fields      ``fields(traj, points[chunk], t_obs, n_jobs=1)``        ``{"E": ..., "B": ...}``
+==========  ====================================================  ==========================
+
+The solvers give per-pixel results that do not depend on the chunking, and
+the chunks are assembled in chunk order, so every number is the same for any
+number of workers and any back end.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["Chunk", "Work", "compute", "GROUPS", "groups_of"]
+
+GROUPS = ("spectra", "power", "fields")
+
+
+def groups_of(quantities) -> list[str]:
+    """Solver groups a study's quantities need, in a fixed order."""
+    out = []
+    if any(q in ("flux_density", "flux", "stokes") for q in quantities):
+        out.append("spectra")
+    if "power_density" in quantities:
+        out.append("power")
+    if "fields" in quantities:
+        out.append("fields")
+    return out
+
+
+@dataclass(frozen=True)
+class Chunk:
+    """Pixels ``start:stop`` (row-major flat indices) of one study and group."""
+
+    study: str
+    group: str
+    index: int
+    start: int
+    stop: int
+
+    @property
+    def key(self) -> str:
+        """Checkpoint key, e.g. ``"u25_maps.spectra.000012"``."""
+        return f"{self.study}.{self.group}.{self.index:06d}"
+
+    @property
+    def n_pixels(self) -> int:
+        return self.stop - self.start
+
+
+@dataclass(frozen=True)
+class Work:
+    """Everything a worker needs for one chunk (picklable).
+
+    Attributes
+    ----------
+    chunk : Chunk
+    source : Trajectory or Bunch
+    observer : AngularGrid, Screen or Points
+        Only the chunk's pixels (``observer.take``).
+    photon_energy : ndarray or None
+        eV (spectra).
+    current : float or None
+        A (power).
+    time : ndarray or None
+        Observer times, s (fields).
+    method, tolerance, coherent
+        Solver options (spectra).
+    """
+
+    chunk: Chunk
+    source: object
+    observer: object
+    photon_energy: np.ndarray | None = None
+    current: float | None = None
+    time: np.ndarray | None = None
+    method: str = "auto"
+    tolerance: float = 1e-4
+    coherent: bool = False
+
+
+def compute(work: Work):
+    """Do one chunk; returns the payload to checkpoint (see the module table)."""
+    group = work.chunk.group
+    if group == "spectra":
+        from lwrad.radiation import radiate
+
+        return radiate(
+            work.source,
+            work.observer,
+            work.photon_energy,
+            method=work.method,
+            n_jobs=1,
+            tolerance=work.tolerance,
+            coherent=work.coherent,
+        )
+    if group == "power":
+        from lwrad.radiation import power_density
+        from lwrad.results import UNIT_TABLE
+
+        values = power_density(work.source, work.observer, work.current, n_jobs=1)
+        return {
+            "power_density": (
+                np.asarray(values, dtype=np.float64),
+                UNIT_TABLE["power_density"][work.observer.kind],
+            )
+        }
+    if group == "fields":
+        from lwrad.timedomain import fields
+
+        e_field, b_field = fields(work.source, work.observer.points(), work.time, n_jobs=1)
+        return {
+            "E": (np.asarray(e_field, dtype=np.float64), "V/m"),
+            "B": (np.asarray(b_field, dtype=np.float64), "T"),
+        }
+    raise ValueError(
+        f"unknown chunk group {group!r}"
+    )  # pragma: no cover - planner makes the groups
