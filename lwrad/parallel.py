@@ -89,7 +89,8 @@ def _iter_processes(func, tasks, workers):
 
 def _iter_dask(func, tasks, scheduler):
     try:
-        from distributed import Client, as_completed as dask_completed
+        from distributed import Client
+        from distributed import as_completed as dask_completed
     except ImportError:  # pragma: no cover
         raise InputError(
             "the Dask back end needs the 'distributed' package: pip install 'lwrad[cluster]'"
@@ -98,12 +99,20 @@ def _iter_dask(func, tasks, scheduler):
     client = Client(scheduler) if own_client else scheduler
     try:
         futures = [
-            client.submit(_single_threaded, func, task, key=f"lwrad-chunk-{i}-{id(tasks)}", pure=False)
+            client.submit(
+                _single_threaded, func, task, key=f"lwrad-chunk-{i}-{id(tasks)}", pure=False
+            )
             for i, task in enumerate(tasks)
         ]
         index_of = {fut.key: i for i, fut in enumerate(futures)}
         for fut in dask_completed(futures):
-            yield index_of[fut.key], fut.result()
+            index = index_of[fut.key]
+            result = fut.result()
+            # drop our reference so the cluster may free the chunk once it is here; a chunk
+            # whose worker dies before this point is recomputed by the scheduler
+            futures[index] = None
+            fut.release()
+            yield index, result
     finally:
         if own_client:
             client.close()
@@ -117,6 +126,7 @@ def run_chunks(
     backend: str | None = None,
     scheduler=None,
     on_result: Callable[[int, object], None] | None = None,
+    keep_results: bool = True,
 ) -> list:
     """Run ``func`` on every task and return the results in task order.
 
@@ -136,11 +146,17 @@ def run_chunks(
     on_result : callable, optional
         Called as ``on_result(index, result)`` in the calling thread as each
         chunk finishes (in completion order) — for progress and checkpoints.
+    keep_results : bool, optional
+        Keep every result for the returned list (default). With ``False``
+        each result is dropped once ``on_result`` has seen it, so a caller
+        that checkpoints every chunk holds one chunk at a time instead of the
+        whole job; the returned list then holds ``None`` placeholders.
 
     Returns
     -------
     list
-        ``[func(task) for task in tasks]``, in order.
+        ``[func(task) for task in tasks]``, in order (``None`` for each task
+        when ``keep_results`` is false).
     """
     tasks = list(tasks)
     n_workers = default_workers() if workers is None else int(workers)
@@ -164,10 +180,12 @@ def run_chunks(
     results: list = [None] * len(tasks)
     done = [False] * len(tasks)
     for index, result in iterator:
-        results[index] = result
+        if keep_results:
+            results[index] = result
         done[index] = True
         if on_result is not None:
             on_result(index, result)
+        del result  # with keep_results=False nothing here holds the chunk any longer
     if not all(done):  # pragma: no cover - a back end lost a chunk
         raise RuntimeError("parallel back end returned fewer chunks than submitted")
     return results

@@ -68,6 +68,7 @@ from __future__ import annotations
 
 import contextlib
 import datetime as _dt
+import errno
 import hashlib
 import json
 import os
@@ -125,6 +126,14 @@ UNIT_TABLE: dict[str, dict[str, str]] = {
     "flux_density": {"angular": "ph/s/0.1%BW/mrad^2", "screen": "ph/s/0.1%BW/mm^2"},
     "stokes": {"angular": "ph/s/0.1%BW/mrad^2", "screen": "ph/s/0.1%BW/mm^2"},
     "flux": {"*": "ph/s/0.1%BW"},
+    # parts of an electron beam's result (lwrad.jobs.beams): same units as the whole
+    "flux_density_single": {"angular": "ph/s/0.1%BW/mrad^2", "screen": "ph/s/0.1%BW/mm^2"},
+    "flux_density_coherent": {"angular": "ph/s/0.1%BW/mrad^2", "screen": "ph/s/0.1%BW/mm^2"},
+    "flux_density_se": {"angular": "ph/s/0.1%BW/mrad^2", "screen": "ph/s/0.1%BW/mm^2"},
+    "stokes_single": {"angular": "ph/s/0.1%BW/mrad^2", "screen": "ph/s/0.1%BW/mm^2"},
+    "stokes_coherent": {"angular": "ph/s/0.1%BW/mrad^2", "screen": "ph/s/0.1%BW/mm^2"},
+    "flux_single": {"*": "ph/s/0.1%BW"},
+    "flux_coherent": {"*": "ph/s/0.1%BW"},
     "power_density": {"angular": "W/mrad^2", "screen": "W/mm^2"},
     "E": {"*": "V/m"},
     "B": {"*": "T"},
@@ -144,6 +153,13 @@ _LONG_NAMES = {
     "flux_density": "photon flux density",
     "stokes": "Stokes parameters S0, S1, S2, S3 (flux density units)",
     "flux": "photon flux integrated over the grid or aperture",
+    "flux_density_single": "photon flux density of the single reference electron (filament beam)",
+    "flux_density_coherent": "coherent part of the beam's photon flux density",
+    "flux_density_se": "Monte Carlo standard error of the beam's photon flux density",
+    "stokes_single": "Stokes parameters of the single reference electron",
+    "stokes_coherent": "Stokes parameters of the beam's coherent part",
+    "flux_single": "photon flux of the single reference electron",
+    "flux_coherent": "photon flux of the beam's coherent part",
     "power_density": "radiated power density (estimate; heat-load design needs engineering review)",
     "E": "electric field at the observer points",
     "B": "magnetic flux density at the observer points",
@@ -241,6 +257,27 @@ def _observer_axis(observer, name: str) -> np.ndarray:
     return np.atleast_1d(np.asarray(values, dtype=np.float64))
 
 
+def _observer_points(observer) -> np.ndarray:
+    """Positions (n, 3) m of a points observer.
+
+    ``Points`` gives them through its ``points()`` method; a ``points`` array
+    attribute or the older ``xyz`` attribute are still accepted.
+    """
+    values = getattr(observer, "points", None)
+    if callable(values):
+        values = values()
+    if values is None:
+        values = getattr(observer, "xyz", None)
+    if values is None:
+        raise InputError("a points observer needs points() (or an xyz attribute)")
+    values = np.asarray(values, dtype=np.float64)
+    if values.shape == (3,):  # a single point
+        values = values.reshape(1, 3)
+    if values.ndim != 2 or values.shape[1] != 3 or values.shape[0] == 0:
+        raise InputError(f"observer points must have shape (n, 3), got {values.shape}")
+    return values
+
+
 class Case:
     """One source seen by one observer: axes, radiation result and derived quantities.
 
@@ -291,7 +328,7 @@ class Case:
             for axis_name in _GRID_AXES[kind]:
                 case.set_axis(axis_name, _observer_axis(observer, axis_name))
         elif kind == "points":
-            case.set_axis("points", np.asarray(observer.points(), dtype=np.float64).reshape(-1, 3))
+            case.set_axis("points", _observer_points(observer))
         return case
 
     def set_axis(
@@ -626,15 +663,37 @@ def job_fingerprint(job_text: str, input_hashes: Mapping[str, str] | None = None
 
 
 def check_writable(
-    path, *, overwrite: bool = False, hint: str = "use --force to replace it"
+    path,
+    *,
+    overwrite: bool = False,
+    hint: str = "use --force to replace it",
+    needed_bytes: int | None = None,
 ) -> Path:
     """Check, before any work, that ``path`` can be written; returns it as a Path.
+
+    Besides the permission bits (which do not bind root) a hidden probe file is
+    created and removed in the target directory, so a read-only file system, a
+    pseudo file system (``/proc``, ``/sys``) or a directory full to the last
+    inode is found here and not after hours of work.
+
+    Parameters
+    ----------
+    path : path-like
+        The file to be written.
+    overwrite : bool
+        Allow ``path`` to exist.
+    hint : str
+        What to tell the user when it exists.
+    needed_bytes : int, optional
+        Bytes the caller will write there (e.g. checkpoint and result); refused
+        when the file system has less free space.
 
     Raises
     ------
     InputError
         The parent directory does not exist or is not a directory, the process
-        may not create files in it, or ``path`` exists and ``overwrite`` is false.
+        may not create files in it, it has less free space than
+        ``needed_bytes``, or ``path`` exists and ``overwrite`` is false.
     """
     path = Path(path)
     parent = path.parent if str(path.parent) else Path(".")
@@ -648,7 +707,40 @@ def check_writable(
         raise InputError("output path is a directory", source=str(path))
     if path.exists() and not overwrite:
         raise InputError(f"output file exists; not overwritten ({hint})", source=str(path))
+    try:
+        fd, probe = tempfile.mkstemp(prefix=".lwrad-probe.", suffix=".tmp", dir=parent)
+    except OSError as exc:
+        raise InputError(
+            f"output directory {str(parent)!r} is not writable: cannot create a file there "
+            f"({exc.strerror or exc})",
+            source=str(path),
+        ) from None
+    os.close(fd)
+    with contextlib.suppress(OSError):
+        os.unlink(probe)
+    if needed_bytes is not None:
+        try:
+            free = shutil.disk_usage(parent).free
+        except OSError:  # pragma: no cover - statvfs unsupported; the write itself will tell
+            free = None
+        if free is not None and free < int(needed_bytes):
+            raise InputError(
+                f"not enough free space in {str(parent)!r}: about {_size(needed_bytes)} needed, "
+                f"{_size(free)} free",
+                source=str(path),
+            )
     return path
+
+
+def _size(n) -> str:
+    for unit, size in (("TB", 1e12), ("GB", 1e9), ("MB", 1e6), ("kB", 1e3)):
+        if abs(n) >= size:
+            return f"{n / size:.3g} {unit}"
+    return f"{int(n)} B"
+
+
+#: errors of the target file system that are the user's to fix (not lwrad bugs)
+_DISK_ERRNOS = {errno.ENOSPC, errno.EDQUOT, errno.EROFS, errno.EACCES, errno.EPERM}
 
 
 @contextlib.contextmanager
@@ -664,13 +756,21 @@ def atomic_output(path, *, overwrite: bool = False):
     """
     path = Path(path)
     # mkstemp creates the file private (0600); give it the mode a plain open() would
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    except OSError as exc:
+        raise _disk_error(exc, path) from None
     os.close(fd)
     tmp_path = Path(tmp)
     try:
-        yield tmp_path
-        with open(tmp_path, "rb+") as fh:
-            os.fsync(fh.fileno())
+        try:
+            yield tmp_path
+            with open(tmp_path, "rb+") as fh:
+                os.fsync(fh.fileno())
+        except OSError as exc:
+            if exc.errno not in _DISK_ERRNOS:
+                raise
+            raise _disk_error(exc, path) from None
         os.chmod(tmp_path, 0o666 & ~_umask())
         if overwrite:
             os.replace(tmp_path, path)
@@ -692,6 +792,21 @@ def atomic_output(path, *, overwrite: bool = False):
     finally:
         with contextlib.suppress(FileNotFoundError):
             tmp_path.unlink()
+
+
+def _disk_error(exc: OSError, path: Path) -> InputError:
+    """A clear message for a full, read-only or forbidden target (the file is not written)."""
+    if exc.errno in (errno.ENOSPC, errno.EDQUOT):
+        what = "no space left on the device (or quota exceeded)"
+    elif exc.errno == errno.EROFS:
+        what = "the file system is read-only"
+    else:
+        what = f"cannot write there ({os.strerror(exc.errno) if exc.errno else exc})"
+    return InputError(
+        f"{what}; nothing was written under this name (a run's checkpoint, if any, is kept: "
+        "free space, then continue with --resume)",
+        source=str(path),
+    )
 
 
 def _umask() -> int:
@@ -903,8 +1018,11 @@ class _Reader:
                 values = obj[()]
         except (OSError, ValueError, TypeError) as exc:
             raise self.error(f"cannot read: {exc}", obj.name) from None
-        if values.dtype.kind not in "fciubO":
-            raise self.error(f"unexpected data type {values.dtype}", obj.name)
+        if values.dtype.kind not in "fciubO" or (
+            values.dtype.kind == "O" and h5py.check_string_dtype(obj.dtype) is None
+        ):
+            # object data other than text (HDF5 references, opaque blobs) is never lwrad's
+            raise self.error(f"unexpected data type {obj.dtype}", obj.name)
         return values, unit
 
     def text_attr(self, obj, key: str, default=None) -> str:

@@ -194,7 +194,15 @@ class Trajectory:
                     location="gamma",
                 )
         if beta_dot is None:
-            beta_dot = self._derive_beta_dot(t, beta)
+            with np.errstate(all="ignore"):
+                beta_dot = self._derive_beta_dot(t, beta)
+            if not np.all(np.isfinite(beta_dot)):
+                raise InputError(
+                    "beta_dot derived from beta is not finite (time steps too close for the "
+                    "derivative); give beta_dot explicitly",
+                    source=src,
+                    location="beta_dot",
+                )
         else:
             beta_dot = _as_float_array("beta_dot", beta_dot, (3,), src)
             if beta_dot.shape[0] != n:
