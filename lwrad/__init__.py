@@ -41,6 +41,8 @@ _EXPORTS: dict[str, str] = {
     "power_density": "lwrad.radiation",
     "total_power": "lwrad.radiation",
     "Result": "lwrad.radiation",
+    "RectangularAperture": "lwrad.observers",
+    "CircularAperture": "lwrad.observers",
     "ElectronBeam": "lwrad.beam",
     "BeamResult": "lwrad.beam_radiation",
     "monte_carlo": "lwrad.beam_radiation",

@@ -27,6 +27,7 @@ __all__ = [
     "plot_spectrum",
     "plot_flux",
     "plot_flux_density_map",
+    "plot_beam_vs_single",
     "plot_power_density",
     "plot_polarization",
     "plot_fields",
@@ -159,6 +160,64 @@ def plot_spectrum(case: Case, *, pixel: tuple[int, int] | None = None, ax=None) 
     ax.set_xlabel(elabel)
     ax.set_ylabel(f"flux density ({unit_label(fd.unit)})")
     ax.set_title(f"{case.name}: spectrum at ({px[ix]:.4g}, {py[iy]:.4g}) {shown}")
+    ax.grid(True, which="both", alpha=0.3)
+    return fig
+
+
+def plot_beam_vs_single(case: Case, *, pixel: tuple[int, int] | None = None, ax=None) -> Figure:
+    """An electron beam's flux density beside the single electron's (log y axis).
+
+    Several photon energies: spectra at one pixel; one photon energy: a
+    horizontal cut through the map at the pixel's row. The beam (incoherent
+    sum) is drawn solid with its Monte Carlo standard error as a band when
+    stored, the single reference electron dashed, a coherent part dotted.
+
+    Parameters
+    ----------
+    case : Case
+        A beam study's case: ``flux_density`` and ``flux_density_single``
+        (optionally ``flux_density_se``, ``flux_density_coherent``), see
+        :mod:`lwrad.jobs.beams`.
+    pixel : (int, int), optional
+        (iy, ix); default the pixel nearest the axis.
+    ax : matplotlib Axes, optional
+    """
+    beam = _need(case, "flux_density")
+    single = _need(case, "flux_density_single")
+    iy, ix = _central_pixel(case) if pixel is None else (int(pixel[0]), int(pixel[1]))
+    ny, nx = beam.values.shape[1:]
+    if not (0 <= iy < ny and 0 <= ix < nx):
+        raise InputError(f"pixel {(iy, ix)} outside the grid of shape {(ny, nx)}")
+    xn, yn = _grid_names(case)
+    px, xlabel = _axis(case, xn)
+    py, _ = _axis(case, yn)
+    shown = _AXIS_DISPLAY[xn][2]
+    e, elabel = _axis(case, "photon_energy")
+    if e.size > 1:
+        x, take, label = e, (lambda v: v[:, iy, ix]), elabel
+        where = f"at ({px[ix]:.4g}, {py[iy]:.4g}) {shown}"
+    else:
+        x, take, label = px, (lambda v: v[0, iy, :]), xlabel
+        where = f"at {e[0]:.6g} eV, {_AXIS_DISPLAY[yn][0]} = {py[iy]:.4g} {shown}"
+    fig, ax = _new_axes(ax)
+    marker = "." if x.size < 40 else None
+    b = take(beam.values)
+    ax.plot(x, b, marker=marker, label="beam (incoherent)")
+    se = case.get("flux_density_se")
+    if se is not None:
+        s = take(se.values)
+        ax.fill_between(x, b - s, b + s, alpha=0.3, label="± Monte Carlo standard error")
+    ax.plot(x, take(single.values), linestyle="--", label="single electron")
+    coherent = case.get("flux_density_coherent")
+    if coherent is not None:
+        ax.plot(x, take(coherent.values), linestyle=":", label="coherent part")
+    _log_or_linear(ax, np.concatenate([b, take(single.values)]))
+    if e.size > 1:
+        _energy_axis(ax, e)
+    ax.set_xlabel(label)
+    ax.set_ylabel(f"flux density ({unit_label(beam.unit)})")
+    ax.set_title(f"{case.name}: beam and single electron {where}")
+    ax.legend()
     ax.grid(True, which="both", alpha=0.3)
     return fig
 
@@ -330,7 +389,7 @@ def plot_all(
 ) -> list[Path]:
     """Write every figure the run's cases support as PNG files; return their paths.
 
-    File names: ``<case>-spectrum.png``, ``<case>-flux.png``,
+    File names: ``<case>-spectrum.png``, ``<case>-flux.png``, ``<case>-beam-vs-single.png``,
     ``<case>-flux-density-<E>eV.png``, ``<case>-circular-<E>eV.png``,
     ``<case>-linear-<E>eV.png``, ``<case>-power-density.png``, ``<case>-fields.png``.
 
@@ -363,6 +422,8 @@ def plot_all(
             figures.append((f"{n}-spectrum.png", lambda c=case: plot_spectrum(c)))
         if grid and case.get("flux") is not None:
             figures.append((f"{n}-flux.png", lambda c=case: plot_flux(c)))
+        if grid and case.get("flux_density_single") is not None:
+            figures.append((f"{n}-beam-vs-single.png", lambda c=case: plot_beam_vs_single(c)))
         if many_pixels and case.get("flux_density") is not None:
             chosen = (
                 photon_energies

@@ -7,6 +7,7 @@ module             concern
 ``planning``       chunk plan, memory and time estimates, memory limits
 ``build``          turn validated specs into lwrad objects (sources, observers)
 ``tasks``          the work of one chunk (picklable, runs in any worker)
+``beams``          electron-beam studies: convolution at assembly, Monte Carlo per chunk
 ``progress``       progress bar or plain log lines
 ``runner``         run a job: estimates, parallel chunks, checkpoint, resume
 =================  ==========================================================

@@ -20,7 +20,11 @@ per-process baseline counts once for them), with
   the checkpoint and assembled: complex fields 3 × 48 bytes per (photon
   energy, pixel), plus 8 bytes for flux density and 32 for Stokes
   parameters; power density 3 × 8 bytes per pixel; time-domain fields
-  3 × 48 bytes per (time, point);
+  3 × 48 bytes per (time, point); for a beam study the single electron's
+  photon energies (extended for an energy-spread convolution, see
+  :mod:`lwrad.jobs.beams`), and per (photon energy, pixel) 3 × 8 × 11 bytes
+  of Monte Carlo sums (moments, standard error, coherent part) plus
+  8 × 12 bytes of beam parts and the convolution's copies;
 * ``per_worker``: the chunk's own result twice (solver output and its
   pickled copy) + solver scratch of :data:`SCRATCH_PER_SAMPLE` bytes per
   trajectory sample + a copy of the source; plus a process baseline for
@@ -124,7 +128,7 @@ def plan_job(job: Job, *, chunk_pixels: int | None = None) -> JobPlan:
         raise InputError(f"chunk size must be >= 1 pixel, got {size}", location="chunk_pixels")
     chunks = []
     for study in job.studies:
-        for group in groups_of(study.quantities):
+        for group in groups_of(study.quantities, study.beam_method):
             for i, sl in enumerate(plan_chunks(study.observer.n_pixels, size)):
                 chunks.append(Chunk(study.name, group, i, sl.start, sl.stop))
     return JobPlan(job, size, tuple(chunks))
@@ -145,19 +149,29 @@ class MemoryEstimate:
         return int(self.fixed + self.workers * self.per_worker)
 
 
-def _study_bytes(study, n_time=None) -> tuple[int, int]:
+def _study_bytes(study, n_time=None, source=None) -> tuple[int, int]:
     """(assembled bytes, bytes per pixel of one chunk's payload) of one study."""
     n_pix = study.observer.n_pixels
     assembled = 0
     per_pixel = 0
-    groups = groups_of(study.quantities)
+    groups = groups_of(study.quantities, study.beam_method)
     if "spectra" in groups:
         n_e = len(study.photon_energy)
+        if source is not None and study.beam_method is not None:
+            from lwrad.jobs.beams import single_electron_energies
+
+            n_e = len(single_electron_energies(study, source))
+            # beam parts (single, incoherent, coherent, standard error) and the convolution's copies
+            assembled += n_e * n_pix * 8 * 12
         derived = (8 if "flux_density" in study.quantities else 0) + (
             32 if "stokes" in study.quantities else 0
         )
         assembled += n_e * n_pix * (_HELD_COPIES * _FIELD_BYTES + derived)
         per_pixel = max(per_pixel, 2 * n_e * _FIELD_BYTES)
+    if "beam" in groups:
+        n_e = len(study.photon_energy)
+        assembled += n_e * n_pix * _HELD_COPIES * 8 * 11
+        per_pixel = max(per_pixel, 2 * n_e * (_FIELD_BYTES + 8 * 11))
     if "power" in groups:
         assembled += n_pix * _HELD_COPIES * 8
         per_pixel = max(per_pixel, 2 * 8)
@@ -191,7 +205,7 @@ def estimate_memory(
     results = 0
     worker = 0
     for study in plan.job.studies:
-        assembled, per_pixel = _study_bytes(study)
+        assembled, per_pixel = _study_bytes(study, source=plan.job.sources.get(study.source))
         results += assembled
         n_chunk = min(chunk, study.observer.n_pixels)
         scratch = SCRATCH_PER_SAMPLE * int(n_samples.get(study.source, 0))

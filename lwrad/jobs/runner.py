@@ -47,12 +47,13 @@ from __future__ import annotations
 
 import sys
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from lwrad.errors import InputError
+from lwrad.jobs import beams as beam_studies
 from lwrad.jobs.build import build_aperture, build_observer, build_source
 from lwrad.jobs.planning import (
     JobPlan,
@@ -86,6 +87,8 @@ class Prepared:
         Study name → observer times (s) for time-domain fields.
     n_samples : dict
         Source name → trajectory samples (summed over a bunch).
+    beams : dict
+        Source name → ElectronBeam, for sources with a ``beam`` table.
     """
 
     job: Job
@@ -94,6 +97,7 @@ class Prepared:
     observers: dict
     times: dict
     n_samples: dict
+    beams: dict = field(default_factory=dict)
 
     def input_hashes(self) -> dict:
         """Input file → SHA-256, for provenance and the checkpoint fingerprint."""
@@ -137,9 +141,14 @@ def prepare(job: Job, *, chunk_pixels: int | None = None) -> Prepared:
             if study.time_origin == "first_arrival":
                 t = t + _first_arrival(sources[study.source], study.observer.points)
             times[study.name] = t
+    beams = {
+        name: beam_studies.build_beam(job.sources[name], ref, job_source=where)
+        for name, ref in sources.items()
+        if job.sources[name].beam is not None
+    }
     plan = plan_job(job, chunk_pixels=chunk_pixels)
     return Prepared(
-        job, plan, sources, observers, times, {k: _samples(v) for k, v in sources.items()}
+        job, plan, sources, observers, times, {k: _samples(v) for k, v in sources.items()}, beams
     )
 
 
@@ -148,16 +157,28 @@ def make_work(prep: Prepared, chunk: Chunk) -> Work:
     study = prep.job.study(chunk.study)
     src_spec = prep.job.sources[study.source]
     observer = prep.observers[study.name].take(np.arange(chunk.start, chunk.stop))
+    energies = None
+    beam = options = None
+    if chunk.group == "spectra":
+        # a beam's convolution may need the single electron beyond the requested energies
+        energies = beam_studies.single_electron_energies(study, src_spec)
+    elif chunk.group == "beam":
+        energies = study.photon_energy
+        beam = prep.beams[study.source]
+        options = beam_studies.beam_options(study, src_spec)
     return Work(
         chunk=chunk,
         source=prep.sources[study.source],
         observer=observer,
-        photon_energy=study.photon_energy if chunk.group == "spectra" else None,
+        photon_energy=energies,
         current=src_spec.current,
         time=prep.times.get(study.name),
         method=study.method,
         tolerance=study.tolerance,
-        coherent=study.coherent,
+        # a beam study's spectra chunks are the single reference electron's
+        coherent=study.coherent and chunk.group == "spectra" and src_spec.beam is None,
+        beam=beam,
+        beam_options=options,
     )
 
 
@@ -178,14 +199,25 @@ def resolve_parallel(job: Job, workers=None, backend=None, scheduler=None) -> tu
 
 
 def calibrate(prep: Prepared, chunks) -> dict:
-    """Seconds per pixel for each (study, group) among ``chunks`` (one pixel, timed after a warm-up call)."""
+    """Seconds per pixel for each (study, group) among ``chunks`` (one pixel, timed after a warm-up call).
+
+    A Monte Carlo (``beam``) chunk is timed with 2 particles and scaled to the
+    job's count (its time is one solver call per particle plus the reference).
+    """
+    from dataclasses import replace
+
     out = {}
     for chunk in chunks:
         pair = (chunk.study, chunk.group)
         if pair in out:
             continue
         one = Chunk(chunk.study, chunk.group, -1, 0, 1)
-        out[pair] = time_calls(compute, make_work(prep, one))
+        work = make_work(prep, one)
+        scale = 1.0
+        if chunk.group == "beam":
+            scale = (work.beam_options["particles"] + 1) / 3.0
+            work = replace(work, beam_options=dict(work.beam_options, particles=2))
+        out[pair] = scale * time_calls(compute, work)
     return out
 
 
@@ -208,12 +240,34 @@ def _assemble(prep: Prepared, checkpoint):
         }
         if src.current is not None:
             attrs["current_A"] = src.current
+        if src.beam is not None and any(q in ("power_density", "fields") for q in study.quantities):
+            attrs["beam_note"] = (
+                "power_density and fields are those of the single reference electron"
+            )
         if study.map_photon_energy is not None:
             attrs["plot_photon_energies"] = [float(e) for e in study.map_photon_energy]
         case = Case.from_observer(study.name, observer, attrs=attrs)
         ny, nx = observer.shape
         spectra = [checkpoint.load_chunk(c.key) for c in prep.plan.chunks_of(study.name, "spectra")]
-        if spectra:
+        if spectra and study.beam_method is not None:
+            # the beam's sum: the convolution needs the whole assembled map (lwrad.jobs.beams)
+            single = Result.concatenate_pixels(spectra, observer)
+            payloads = [
+                checkpoint.load_chunk(c.key) for c in prep.plan.chunks_of(study.name, "beam")
+            ]
+            beam_result, single, info = beam_studies.assemble_beam(
+                study, src, prep.beams[study.source], single, payloads
+            )
+            beam_studies.add_beam_parts(
+                case,
+                study,
+                single,
+                beam_result,
+                src.current,
+                aperture=build_aperture(study.aperture),
+                info=info,
+            )
+        elif spectra:
             result = Result.concatenate_pixels(spectra, observer)
             wanted = [q for q in ("flux_density", "stokes", "flux") if q in study.quantities]
             case.add_spectra(

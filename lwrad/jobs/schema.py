@@ -20,6 +20,9 @@ Layout
     [sources.<name>]                   # one or more named sources
     kind = "magnets" | "trajectory"
     ...
+    [sources.<name>.beam]              # optional: an electron beam around this
+    emittance_x = "4 nm*rad"           # source's (reference) trajectory
+    ...
 
     [[study]]                          # one or more studies, run in order
     name = "..."
@@ -57,6 +60,32 @@ sources.<name>.file (trajectory)           path        (file|files)   one trajec
 sources.<name>.files (trajectory)          paths       (file|files)   several files, an incoherent bunch
 sources.<name>.format (trajectory)         text        "auto"         reader to use
 sources.<name>.reader (trajectory)         table       {}             reader options (scalars only)
+sources.<name>.beam                        table       (no beam)      the beam around the source's path, below
+beam.energy                                GeV         source's (‡)   beam energy (must equal the source's)
+beam.current                               A           source's       beam current (must equal the source's)
+beam.emittance_x, emittance_y              m*rad       required       geometric rms emittances (>= 0)
+beam.beta_x, beta_y                        m           required       Twiss β at the reference plane (> 0)
+beam.alpha_x, alpha_y                      1           0              Twiss α at the reference plane
+beam.energy_spread                         1 (or %)    0              rms relative energy spread σ_δ
+beam.bunch_length                          m (or s)    none           rms bunch length (``"3 mm"``, ``"10 ps"``)
+beam.bunch_charge                          C           none           charge of one bunch (coherent part)
+beam.longitudinal_profile                  table       none           ``{t = [...], density = [...],
+                                                                      t_unit = "ps"}`` (not with
+                                                                      bunch_length)
+beam.dispersion_x, dispersion_y            m           0              dispersion D at the reference plane
+beam.dispersion_xp, dispersion_yp          rad         0              dispersion slope D'
+beam.method                                choice      "auto"         ``auto`` (``convolution`` on angular
+                                                                      grids, ``monte_carlo`` on screens),
+                                                                      ``convolution``, ``monte_carlo``
+beam.particles (monte_carlo)               integer     256            macro-electrons (>= 2), the same set
+                                                                      for every pixel
+beam.rel_tolerance (monte_carlo)           1           0.05           target relative standard error,
+                                                                      checked when the study is assembled
+beam.seed (monte_carlo)                    integer     1              seed of the particle sampling
+beam.offsets (monte_carlo)                 choice      "longitudinal  ``longitudinal-field`` (exact for
+                                                       -field"        fields depending on z only) or
+                                                                      ``rigid`` (no energy spread)
+beam.z_ref                                 m           path middle    plane of the Twiss parameters
 magnet[].type                              choice      required       ``planar_undulator``,
                                                                       ``helical_undulator``,
                                                                       ``elliptical_undulator``, ``dipole``,
@@ -119,6 +148,23 @@ run.memory_limit                           GB          available      refuse job
 (†) with ``fringe = "soft"`` only.
 (**) for ``fields`` only, which needs ``observer.kind = "points"`` and is the
 only quantity allowed with it.
+(‡) required for ``trajectory`` sources, whose energy is only known once the
+file is read (it is checked against the file then).
+
+Electron beams
+--------------
+A source with a ``beam`` table stands for a beam of electrons around its
+(reference) trajectory; its energy and current are the source's. The beam
+keys are those of :meth:`lwrad.ElectronBeam.from_dict` (which validates
+them): bare numbers are in SI (m*rad, m, rad, C) except ``energy`` (GeV, as
+everywhere in a job file). Studies of a beam source report the beam's
+flux density (``flux_density``, ``stokes``, ``flux``: the incoherent sum)
+beside the single electron's (``..._single``); with ``study.coherent = true``
+also the coherent part (``..._coherent``, needs ``bunch_charge`` and
+``monte_carlo``), and for ``monte_carlo`` the standard error
+``flux_density_se``. ``power_density`` and ``fields`` remain those of the
+reference electron. How each method runs is described in
+:mod:`lwrad.jobs.beams`.
 """
 
 from __future__ import annotations
@@ -140,6 +186,7 @@ from lwrad.units import parse_quantity
 __all__ = [
     "Job",
     "SourceSpec",
+    "BeamSpec",
     "ObserverSpec",
     "ApertureSpec",
     "StudySpec",
@@ -152,6 +199,8 @@ __all__ = [
     "QUANTITIES",
     "FREQUENCY_QUANTITIES",
     "MAGNET_TYPES",
+    "BEAM_METHODS",
+    "BEAM_OFFSETS",
     "DEFAULT_CHUNK_PIXELS",
 ]
 
@@ -168,6 +217,29 @@ MAGNET_TYPES = (
     "on_axis_field_map",
 )
 DEFAULT_CHUNK_PIXELS = 64
+#: how a study of a beam source sums the electrons (``auto`` is resolved per study)
+BEAM_METHODS = ("auto", "convolution", "monte_carlo")
+#: how Monte Carlo particles get their paths from the reference (see :mod:`lwrad.beam`)
+BEAM_OFFSETS = ("longitudinal-field", "rigid")
+#: ElectronBeam keys a job's beam table passes to :meth:`lwrad.ElectronBeam.from_dict`
+_BEAM_PARAMETERS = (
+    "energy",
+    "current",
+    "emittance_x",
+    "emittance_y",
+    "beta_x",
+    "beta_y",
+    "alpha_x",
+    "alpha_y",
+    "energy_spread",
+    "bunch_length",
+    "bunch_charge",
+    "longitudinal_profile",
+    "dispersion_x",
+    "dispersion_xp",
+    "dispersion_y",
+    "dispersion_yp",
+)
 _BACKENDS = ("auto", "serial", "threads", "processes")
 _NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_\-]{0,63}$")
 
@@ -227,6 +299,50 @@ def parse_memory(value, *, default_unit: str = "GB", source=None, location=None)
 
 
 @dataclass(frozen=True)
+class BeamSpec:
+    """A validated electron beam around a source's reference trajectory.
+
+    Attributes
+    ----------
+    parameters : dict
+        :meth:`lwrad.ElectronBeam.to_dict` of the validated beam (eV, A,
+        m·rad, m, rad, C; plain data), rebuilt with ``ElectronBeam.from_dict``.
+    method : str
+        ``"auto"``, ``"convolution"`` or ``"monte_carlo"`` (resolved per study
+        in :attr:`StudySpec.beam_method`).
+    particles : int
+        Monte Carlo macro-electrons.
+    rel_tolerance : float or None
+        Target relative standard error (Monte Carlo), checked at assembly.
+    seed : int
+        Seed of the particle sampling.
+    offsets : str
+        ``"longitudinal-field"`` or ``"rigid"``.
+    z_ref : float or None
+        Plane of the Twiss parameters, m (None: middle of the path).
+    """
+
+    parameters: dict
+    method: str = "auto"
+    particles: int = 256
+    rel_tolerance: float | None = 0.05
+    seed: int = 1
+    offsets: str = "longitudinal-field"
+    z_ref: float | None = None
+
+    @property
+    def energy_spread(self) -> float:
+        """rms relative energy spread σ_δ."""
+        return float(self.parameters.get("energy_spread", 0.0))
+
+    def electron_beam(self):
+        """The :class:`lwrad.ElectronBeam` (built anew; plain data in, validated)."""
+        from lwrad.beam import ElectronBeam
+
+        return ElectronBeam.from_dict(self.parameters)
+
+
+@dataclass(frozen=True)
 class SourceSpec:
     """A validated source: magnets to track through, or trajectory files.
 
@@ -246,6 +362,7 @@ class SourceSpec:
     format: str = "auto"
     reader: dict = field(default_factory=dict)
     bunch: bool = False
+    beam: BeamSpec | None = None
 
 
 @dataclass(frozen=True)
@@ -305,6 +422,7 @@ class StudySpec:
     tolerance: float = 1e-4
     coherent: bool = False
     map_photon_energy: np.ndarray | None = None
+    beam_method: str | None = None
 
     @property
     def frequency_domain(self) -> bool:
@@ -755,10 +873,123 @@ def _source(name: str, t: _Table, base: Path, files: list) -> SourceSpec | None:
                     )
             reader.finish()
         spec["reader"] = options
+    if t.has("beam"):
+        bt = t.table("beam")
+        if bt is not None and kind is not None:
+            beam, beam_current = _beam(bt, spec)
+            spec["beam"] = beam
+            if spec["current"] is None:
+                spec["current"] = beam_current
+    else:
+        t.known.append("beam")
+        t.problems.seen_keys.add(f"{t.pattern}.beam")
     if kind is None:
         return None
     t.finish()
     return SourceSpec(**spec)
+
+
+def _beam(t: _Table, spec: dict) -> tuple[BeamSpec | None, float | None]:
+    """The ``beam`` table of a source → (BeamSpec or None, beam current in A or None).
+
+    Units and values are judged by :meth:`lwrad.ElectronBeam.from_dict`; this
+    adds the job's conventions (energy in GeV, energy and current shared with
+    the source) and the keys that say how the beam is summed.
+    """
+    from lwrad.beam import ElectronBeam
+
+    problems = t.problems
+    n_before = len(problems.items)
+    eV = parse_quantity("1 eV", "energy", default_unit="eV")
+    params: dict[str, Any] = {}
+    energy = t.quantity("energy", "energy", "GeV", default=None, positive=True)
+    source_energy = spec.get("energy_ev")
+    if energy is not None:
+        energy /= eV
+        if source_energy is not None and abs(energy - source_energy) > 1e-9 * source_energy:
+            problems.add(
+                t.key("energy"),
+                f"got {t.data['energy']!r}; expected the source's energy "
+                f"({source_energy / 1e9:.9g} GeV): the source's path is the beam's reference electron",
+            )
+    elif source_energy is not None:
+        energy = source_energy
+    elif spec.get("kind") == "trajectory":
+        problems.add(
+            t.key("energy"),
+            "missing; a beam around a trajectory file needs its energy (e.g. '2.5 GeV'), "
+            "checked against the file",
+        )
+    current = t.quantity("current", "current", "A", default=None, positive=True)
+    source_current = spec.get("current")
+    if current is not None and source_current is not None:
+        if abs(current - source_current) > 1e-12 * source_current:
+            problems.add(
+                t.key("current"),
+                f"got {t.data['current']!r}; expected the source's current ({source_current:.9g} A) "
+                "or no beam current at all",
+            )
+    current = source_current if current is None else current
+    if current is None:
+        problems.add(
+            t.key("current"), "missing; give the beam current here or in the source (e.g. '0.3 A')"
+        )
+    for key in _BEAM_PARAMETERS:
+        if key in ("energy", "current"):
+            continue
+        value = t.raw(key)
+        if value is not None:
+            params[key] = value
+    method = t.text("method", default="auto", choices=BEAM_METHODS)
+    particles = t.integer("particles", default=256, minimum=2)
+    rel_tolerance = t.number("rel_tolerance", default=0.05, positive=True)
+    seed = t.integer("seed", default=1, minimum=0)
+    offsets = t.text("offsets", default="longitudinal-field", choices=BEAM_OFFSETS)
+    z_ref = t.quantity("z_ref", "length", "m", default=None)
+    if method == "convolution":
+        for key in ("particles", "rel_tolerance", "seed", "offsets"):
+            if t.has(key):
+                problems.add(
+                    t.key(key), "only used by method = 'monte_carlo' (or 'auto' on a screen)"
+                )
+    if spec.get("bunch"):
+        problems.add(
+            t.path,
+            "a beam needs one reference trajectory ('file'), not a bunch of them ('files')",
+        )
+    t.finish()
+    if len(problems.items) > n_before or energy is None or current is None:
+        return None, current
+    params["energy"] = energy
+    params["current"] = current
+    params["particle"] = spec.get("particle", "electron")
+    try:
+        beam = ElectronBeam.from_dict(params, source=problems.source, prefix=t.path)
+    except InputError as exc:
+        location = (exc.location or t.path).removeprefix("key ")
+        name = location.rsplit(".", 1)[-1]
+        unit = ElectronBeam._KEYS.get(name, (None, None))[1]
+        hint = f" (bare numbers are in {unit})" if unit and name != "energy" else ""
+        problems.add(location, f"{exc.detail}{hint}")
+        return None, current
+    if offsets == "rigid" and beam.energy_spread > 0:
+        problems.add(
+            t.key("offsets"),
+            "'rigid' offsets cannot represent an energy spread; use 'longitudinal-field'",
+        )
+        return None, current
+    return (
+        BeamSpec(
+            parameters=beam.to_dict(),
+            method=method,
+            particles=particles,
+            rel_tolerance=rel_tolerance,
+            seed=seed,
+            offsets=offsets,
+            z_ref=z_ref,
+        ),
+        current,
+    )
 
 
 def _observer(t: _Table) -> ObserverSpec | None:
@@ -920,6 +1151,9 @@ def _study(i: int, t: _Table, sources: dict, run: dict) -> StudySpec | None:
     src = sources.get(source)
     if src is not None and src.current is None and any(q != "fields" for q in qs):
         problems.needs_current.setdefault(source, []).append(name)
+    beam_method = None
+    if src is not None and src.beam is not None and needs_energy and observer is not None:
+        beam_method = _beam_method(t, src, name, observer, photon_energy, coherent)
     t.finish()
     if (
         observer is None
@@ -941,7 +1175,60 @@ def _study(i: int, t: _Table, sources: dict, run: dict) -> StudySpec | None:
         tolerance=tolerance,
         coherent=coherent,
         map_photon_energy=map_energy,
+        beam_method=beam_method,
     )
+
+
+def _beam_method(t: _Table, src: SourceSpec, study: str, observer, photon_energy, coherent) -> str:
+    """Resolve ``auto`` and check that the study can use the source's beam method."""
+    problems = t.problems
+    spec = src.beam
+    method_key = f"sources.{src.name}.beam.method"
+    method = spec.method
+    if method == "auto":
+        method = "convolution" if observer.kind == "angular" else "monte_carlo"
+    if method == "convolution" and observer.kind != "angular":
+        problems.add(
+            method_key,
+            f"'convolution' (the far-field fast path) works on angular grids only, but study "
+            f"{study!r} has {t.key('observer.kind')} = {observer.kind!r}; use method = "
+            "'monte_carlo' (or 'auto', which picks it for screens)",
+        )
+    if coherent:
+        if method == "convolution":
+            problems.add(
+                t.key("coherent"),
+                f"the coherent part of a beam needs {method_key} = 'monte_carlo'; the "
+                "convolution fast path adds intensities only",
+            )
+        if spec.parameters.get("bunch_charge") is None:
+            problems.add(
+                f"sources.{src.name}.beam.bunch_charge",
+                f"missing; study {study!r} asks for the coherent part (coherent = true), "
+                "which needs the charge of one bunch (e.g. '1 nC')",
+            )
+    if method == "convolution":
+        beam = spec.electron_beam()
+        sx, sy = beam.betatron_divergence
+        spread = beam.energy_spread > 0
+        for axis, values, sigma, slope in (
+            ("theta_x", observer.theta_x, sx, beam.dispersion_xp),
+            ("theta_y", observer.theta_y, sy, beam.dispersion_yp),
+        ):
+            one_point = values is not None and len(values) < 2
+            if one_point and (sigma > 0 or slope != 0 or (spread and values[0] != 0.0)):
+                problems.add(
+                    t.key(f"observer.{axis}"),
+                    f"a single angle; the beam's spread (rms {sigma * 1e6:.3g} urad) is convolved "
+                    "across pixels: give a grid covering several rms divergences",
+                )
+        if spread and photon_energy is not None and len(photon_energy) < 2:
+            problems.add(
+                t.key("photon_energy"),
+                "a single photon energy; the energy spread is convolved across photon energies: "
+                "give a grid that resolves the spectral lines",
+            )
+    return method
 
 
 def _run(t: _Table | None, problems) -> dict:

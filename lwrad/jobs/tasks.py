@@ -10,11 +10,15 @@ group       solver call                                           payload (check
 spectra     ``radiate(source, observer.take(chunk), E, n_jobs=1)``  the ``Result``
 power       ``power_density(source, observer.take(chunk), I)``      ``{"power_density": ...}``
 fields      ``fields(traj, points[chunk], t_obs, n_jobs=1)``        ``{"E": ..., "B": ...}``
+beam        ``monte_carlo(beam, observer.take(chunk), E, ...)``     ``{"incoherent_moments": ...}``
 ==========  ====================================================  ==========================
 
 The solvers give per-pixel results that do not depend on the chunking, and
 the chunks are assembled in chunk order, so every number is the same for any
-number of workers and any back end.
+number of workers and any back end. The ``beam`` group (Monte Carlo studies
+of a beam source only) samples a fixed number of particles from a fixed
+seed, so every chunk sees the same particles and a pixel's sum does not
+depend on the chunk it falls in (see :mod:`lwrad.jobs.beams`).
 """
 
 from __future__ import annotations
@@ -25,14 +29,21 @@ import numpy as np
 
 __all__ = ["Chunk", "Work", "compute", "GROUPS", "groups_of"]
 
-GROUPS = ("spectra", "power", "fields")
+GROUPS = ("spectra", "power", "fields", "beam")
 
 
-def groups_of(quantities) -> list[str]:
-    """Solver groups a study's quantities need, in a fixed order."""
+def groups_of(quantities, beam_method: str | None = None) -> list[str]:
+    """Solver groups a study's quantities need, in a fixed order.
+
+    ``beam_method`` is the study's resolved beam method (``"monte_carlo"``
+    adds the ``beam`` group; the convolution works on the assembled
+    ``spectra``).
+    """
     out = []
     if any(q in ("flux_density", "flux", "stokes") for q in quantities):
         out.append("spectra")
+        if beam_method == "monte_carlo":
+            out.append("beam")
     if "power_density" in quantities:
         out.append("power")
     if "fields" in quantities:
@@ -78,6 +89,10 @@ class Work:
         Observer times, s (fields).
     method, tolerance, coherent
         Solver options (spectra).
+    beam : ElectronBeam or None
+        The beam (``beam`` group).
+    beam_options : dict or None
+        ``particles``, ``seed``, ``offsets``, ``z_ref``, ``coherent`` (``beam`` group).
     """
 
     chunk: Chunk
@@ -89,6 +104,8 @@ class Work:
     method: str = "auto"
     tolerance: float = 1e-4
     coherent: bool = False
+    beam: object = None
+    beam_options: dict | None = None
 
 
 def compute(work: Work):
@@ -125,6 +142,10 @@ def compute(work: Work):
             "E": (np.asarray(e_field, dtype=np.float64), "V/m"),
             "B": (np.asarray(b_field, dtype=np.float64), "T"),
         }
+    if group == "beam":
+        from lwrad.jobs.beams import monte_carlo_chunk
+
+        return monte_carlo_chunk(work)
     raise ValueError(
         f"unknown chunk group {group!r}"
     )  # pragma: no cover - planner makes the groups

@@ -1,0 +1,682 @@
+"""Compiled kernels of the frequency-domain radiation integral (private).
+
+All kernels take plain float64 arrays, write into arrays allocated by the
+caller and release the GIL (``nogil=True``), so that pixel chunks can run in
+threads. Orchestration (sampling, tails, chunking, units) lives in
+:mod:`lwrad.engine.frequency`.
+
+The quadrature
+--------------
+The radiation integral is written over the observer phase variable
+φ = t − n·r/c (far field) or φ = t + R/c (near field), dφ/dt = κ = 1 − n·β:
+
+    I(ω) = ∫ f(φ) e^{iωφ} dφ,   f = (integrand in t)/κ.
+
+Over one step [φ_k, φ_{k+1}] (Δ = φ_{k+1} − φ_k, s = (φ − φ_k)/Δ) the phase is
+exactly linear in φ and the amplitude is a polynomial q(s) = Σ c_m s^m:
+
+* far field — a quartic with q = f and dq/dφ = f' at both ends and the exact
+  step integral ∫ f dφ = ΔG (f = dG/dφ with G = (n − β)/κ, transverse part;
+  f' from d²β/dt²): error O(Δ⁶) per unit length (measured: 16 → 32 samples
+  per undulator period reduce the error ≈ 60×);
+* near field — a quadratic with q = f at both ends and ∫ f dφ from two-point
+  Gauss–Legendre quadrature in t (f is the Liénard–Wiechert field): O(Δ⁴).
+
+The step integral Δ e^{iωφ_k} Σ_m c_m M_m(θ), θ = ωΔ, with the moments
+M_m(θ) = ∫₀¹ s^m e^{iθs} ds (upward recurrence for θ ≥ 1, Taylor series
+below) is exact for that amplitude (a Filon-type rule; L. N. G. Filon, Proc.
+R. Soc. Edinburgh 49 (1928) 38). The error does not grow with the phase
+advance per step, only with the amplitude's variation; at ω → 0 the rule
+reproduces ∫ f dφ. When every step advances by θ ≥ 0.05 the same sum is
+evaluated by repeated integration by parts as a node sum of the jumps of
+q^(m) times e^{iωφ_k}/(iω)^{m+1}: a few multiply-adds per sample and energy
+(phasors e^{iωφ_k} by recurrence over equally spaced energies), the fast path.
+
+Phase accuracy: φ_k − φ_0 is accumulated from κ (computed without
+cancellation from 1/γ² and the angle between n and β) rather than formed as
+t − n·r/c, which for γ ~ 5000 loses ~8 significant digits.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba as nb
+import numpy as np
+
+__all__ = [
+    "far_amplitudes",
+    "near_amplitudes",
+    "filon_sum",
+    "quadratic_coefficients",
+    "quartic_coefficients",
+    "far_field_pixels",
+    "far_power_pixels",
+    "near_power_pixels",
+    "lienard_energy",
+]
+
+_SERIES_THETA = 1.0  # below: Taylor series of the moments; above: upward recurrence (loss ≤ 4! ε)
+_N_SERIES = 20  # 1/20! ≈ 4e-19: series truncation below double rounding
+_THETA_JUMP = 0.05  # node-sum form when every step advances ≥ 0.05 rad (loss ≲ ε/θ⁵ ≈ 3e6 ε)
+_INV_FACT = np.array([1.0 / math.factorial(j) for j in range(_N_SERIES)])
+
+
+@nb.njit(nogil=True, cache=True, inline="always")
+def _kappa(nx, ny, nz, bx, by, bz, ig2):
+    # κ = 1 − n·β = (1 − |β|) + |β| |n − β̂|²/2, with 1 − |β| = (1/γ²)/(1 + |β|)
+    b = math.sqrt(bx * bx + by * by + bz * bz)
+    if b == 0.0:
+        return 1.0
+    dx = nx - bx / b
+    dy = ny - by / b
+    dz = nz - bz / b
+    return ig2 / (1.0 + b) + 0.5 * b * (dx * dx + dy * dy + dz * dz)
+
+
+@nb.njit(nogil=True, cache=True)
+def far_amplitudes(n, t, r, beta, bdot, bddot, ig2, c_light, phi, f, fp, dg):
+    """Far-field phase, amplitude and step integrals for one direction.
+
+    Parameters
+    ----------
+    n : (3,) unit direction. t : (N,) s. r : (N, 3) m. beta, bdot, bddot : (N, 3)
+        β, dβ/dt (1/s), d²β/dt² (1/s²). ig2 : (N,) 1/γ². c_light : m/s.
+    phi : (N,) out, s, φ_k − φ_0. f : (N, 2) out, (x, y) of n×((n−β)×β̇)/κ³ (1/s),
+        the amplitude per dφ. fp : (N, 2) out, df/dφ (1/s²). dg : (N−1, 2) out,
+        ΔG of G = (n − β)/κ (x, y), whose φ-derivative is f exactly.
+
+    Returns
+    -------
+    float
+        φ_0 = t_0 − n·r_0/c, s (absolute phase reference).
+    """
+    nx, ny, nz = n[0], n[1], n[2]
+    npt = t.shape[0]
+    gx_prev = 0.0
+    gy_prev = 0.0
+    kap_prev = 0.0
+    kd_prev = 0.0
+    kdd_prev = 0.0
+    for k in range(npt):
+        bx, by, bz = beta[k, 0], beta[k, 1], beta[k, 2]
+        ax, ay, az = bdot[k, 0], bdot[k, 1], bdot[k, 2]
+        kap = _kappa(nx, ny, nz, bx, by, bz, ig2[k])
+        ndot = nx * ax + ny * ay + nz * az
+        inv3 = 1.0 / (kap * kap * kap)
+        vx = (nx - bx) * ndot - ax * kap
+        vy = (ny - by) * ndot - ay * kap
+        f[k, 0] = vx * inv3
+        f[k, 1] = vy * inv3
+        # d/dt of V = (n−β)(n·β̇) − β̇κ is (n−β)(n·β̈) − β̈κ (the β̇ terms cancel)
+        jx, jy, jz = bddot[k, 0], bddot[k, 1], bddot[k, 2]
+        ndd = nx * jx + ny * jy + nz * jz
+        c4 = 3.0 * ndot * inv3 / kap
+        fp[k, 0] = (((nx - bx) * ndd - jx * kap) * inv3 + vx * c4) / kap
+        fp[k, 1] = (((ny - by) * ndd - jy * kap) * inv3 + vy * c4) / kap
+        gx = (nx - bx) / kap
+        gy = (ny - by) / kap
+        kd = -ndot  # dκ/dt
+        kdd = -ndd  # d²κ/dt²
+        if k == 0:
+            phi[0] = 0.0
+        else:
+            h = t[k] - t[k - 1]
+            # integral of φ' = κ exact for the quintic Hermite interpolant of κ (κ, κ', κ'' at both ends)
+            phi[k] = phi[k - 1] + h * (
+                0.5 * (kap_prev + kap) + h * ((kd_prev - kd) / 10.0 + h * (kdd_prev + kdd) / 120.0)
+            )
+            dg[k - 1, 0] = gx - gx_prev
+            dg[k - 1, 1] = gy - gy_prev
+        gx_prev, gy_prev, kap_prev, kd_prev, kdd_prev = gx, gy, kap, kd, kdd
+    return t[0] - (nx * r[0, 0] + ny * r[0, 1] + nz * r[0, 2]) / c_light
+
+
+@nb.njit(nogil=True, cache=True)
+def _lw_field(px, py, pz, rx, ry, rz, bx, by, bz, ax, ay, az, ig2, c_light, out):
+    # Liénard–Wiechert field per q/(4πε0) and κ at the retarded point (Jackson 14.14)
+    dx = px - rx
+    dy = py - ry
+    dz = pz - rz
+    rr = math.sqrt(dx * dx + dy * dy + dz * dz)
+    nx, ny, nz = dx / rr, dy / rr, dz / rr
+    kap = _kappa(nx, ny, nz, bx, by, bz, ig2)
+    b = math.sqrt(bx * bx + by * by + bz * bz)
+    # n − β = (n − β̂) + β̂ (1 − |β|): keeps the small z component accurate
+    omb = ig2 / (1.0 + b)
+    if b > 0.0:
+        mx = nx - bx / b + bx / b * omb
+        my = ny - by / b + by / b * omb
+        mz = nz - bz / b + bz / b * omb
+    else:
+        mx, my, mz = nx, ny, nz
+    ndot = nx * ax + ny * ay + nz * az
+    inv3 = 1.0 / (kap * kap * kap)
+    cv = ig2 * inv3 / (rr * rr)
+    ca = inv3 / (c_light * rr)
+    out[0] = mx * cv + (mx * ndot - ax * kap) * ca
+    out[1] = my * cv + (my * ndot - ay * kap) * ca
+    out[2] = mz * cv + (mz * ndot - az * kap) * ca
+    return kap, rr
+
+
+@nb.njit(nogil=True, cache=True)
+def near_amplitudes(x, t, r, beta, bdot, ig2, rg, betag, bdotg, ig2g, c_light, phi, f, dg):
+    """Near-field phase, amplitude (the time-domain field) and step integrals.
+
+    Parameters
+    ----------
+    x : (3,) observer point, m. t, r, beta, bdot, ig2 : samples (N,…).
+    rg, betag, bdotg : (N−1, 2, 3) and ig2g : (N−1, 2) the trajectory at the two
+        Gauss–Legendre points of every step, t_k + h (1 ∓ 1/√3)/2.
+    phi : (N,) out, φ_k − φ_0 with φ = t + R/c, s. f : (N, 3) out, E·4πε0/q at
+        observer time φ (Liénard–Wiechert, V/m per (q/4πε0)). dg : (N−1, 3) out,
+        ∫ f dφ over each step.
+
+    Returns
+    -------
+    float
+        φ_0 = t_0 + R_0/c, s.
+    """
+    npt = t.shape[0]
+    e = np.empty(3)
+    e2 = np.empty(3)
+    kap0, r0 = _lw_field(
+        x[0],
+        x[1],
+        x[2],
+        r[0, 0],
+        r[0, 1],
+        r[0, 2],
+        beta[0, 0],
+        beta[0, 1],
+        beta[0, 2],
+        bdot[0, 0],
+        bdot[0, 1],
+        bdot[0, 2],
+        ig2[0],
+        c_light,
+        e,
+    )
+    f[0, 0], f[0, 1], f[0, 2] = e[0], e[1], e[2]
+    phi[0] = 0.0
+    for k in range(npt - 1):
+        h = t[k + 1] - t[k]
+        ka, _ = _lw_field(
+            x[0],
+            x[1],
+            x[2],
+            rg[k, 0, 0],
+            rg[k, 0, 1],
+            rg[k, 0, 2],
+            betag[k, 0, 0],
+            betag[k, 0, 1],
+            betag[k, 0, 2],
+            bdotg[k, 0, 0],
+            bdotg[k, 0, 1],
+            bdotg[k, 0, 2],
+            ig2g[k, 0],
+            c_light,
+            e,
+        )
+        kb, _ = _lw_field(
+            x[0],
+            x[1],
+            x[2],
+            rg[k, 1, 0],
+            rg[k, 1, 1],
+            rg[k, 1, 2],
+            betag[k, 1, 0],
+            betag[k, 1, 1],
+            betag[k, 1, 2],
+            bdotg[k, 1, 0],
+            bdotg[k, 1, 1],
+            bdotg[k, 1, 2],
+            ig2g[k, 1],
+            c_light,
+            e2,
+        )
+        # ∫ f dφ = ∫ E κ dt, two-point Gauss–Legendre in t
+        for i in range(3):
+            dg[k, i] = 0.5 * h * (e[i] * ka + e2[i] * kb)
+        phi[k + 1] = phi[k] + 0.5 * h * (ka + kb)
+        _lw_field(
+            x[0],
+            x[1],
+            x[2],
+            r[k + 1, 0],
+            r[k + 1, 1],
+            r[k + 1, 2],
+            beta[k + 1, 0],
+            beta[k + 1, 1],
+            beta[k + 1, 2],
+            bdot[k + 1, 0],
+            bdot[k + 1, 1],
+            bdot[k + 1, 2],
+            ig2[k + 1],
+            c_light,
+            e,
+        )
+        f[k + 1, 0], f[k + 1, 1], f[k + 1, 2] = e[0], e[1], e[2]
+    return t[0] + r0 / c_light
+
+
+@nb.njit(nogil=True, cache=True)
+def quadratic_coefficients(phi, f, dg, coef):
+    """Per-step amplitude polynomial q(s) = Σ c_m s^m from end values and step integrals.
+
+    q(0) = f_k, q(1) = f_{k+1}, ∫₀¹ q ds = dg_k/Δ_k (a quadratic; c3 = c4 = 0).
+    coef : (N−1, C, 5) out.
+    """
+    for k in range(phi.shape[0] - 1):
+        d = phi[k + 1] - phi[k]
+        for i in range(f.shape[1]):
+            mean = dg[k, i] / d
+            coef[k, i, 0] = f[k, i]
+            coef[k, i, 1] = 6.0 * mean - 4.0 * f[k, i] - 2.0 * f[k + 1, i]
+            coef[k, i, 2] = 3.0 * (f[k, i] + f[k + 1, i]) - 6.0 * mean
+            coef[k, i, 3] = 0.0
+            coef[k, i, 4] = 0.0
+
+
+@nb.njit(nogil=True, cache=True)
+def quartic_coefficients(phi, f, fp, dg, coef):
+    """Per-step quartic q(s) from end values, end derivatives (d/dφ) and step integrals.
+
+    q(0) = f_k, q(1) = f_{k+1}, q'(0) = Δ f'_k, q'(1) = Δ f'_{k+1}, ∫₀¹ q ds = dg_k/Δ.
+    coef : (N−1, C, 5) out.
+    """
+    for k in range(phi.shape[0] - 1):
+        d = phi[k + 1] - phi[k]
+        for i in range(f.shape[1]):
+            f0 = f[k, i]
+            d0 = d * fp[k, i]
+            r1 = f[k + 1, i] - f0 - d0
+            r2 = d * fp[k + 1, i] - d0
+            r3 = dg[k, i] / d - f0 - 0.5 * d0
+            coef[k, i, 0] = f0
+            coef[k, i, 1] = d0
+            coef[k, i, 2] = -12.0 * r1 + 1.5 * r2 + 30.0 * r3
+            coef[k, i, 3] = 28.0 * r1 - 4.0 * r2 - 60.0 * r3
+            coef[k, i, 4] = -15.0 * r1 + 2.5 * r2 + 30.0 * r3
+
+
+@nb.njit(nogil=True, cache=True)
+def _jumps(phi, coef, tail_lo, tail_hi, jmp):
+    # jmp[k, i, m] = q^(m)(φ_k⁻) − q^(m)(φ_k⁺) in φ units (derivatives of the
+    # piecewise polynomial; zero outside the path). Returns the smallest step.
+    npt = phi.shape[0]
+    nc = coef.shape[1]
+    dmin = np.inf
+    for k in range(npt):
+        for i in range(nc):
+            for m in range(5):
+                jmp[k, i, m] = 0.0
+    for k in range(npt - 1):
+        d = phi[k + 1] - phi[k]
+        dmin = min(dmin, d)
+        inv = 1.0 / d
+        for i in range(nc):
+            c0, c1, c2, c3, c4 = (
+                coef[k, i, 0],
+                coef[k, i, 1],
+                coef[k, i, 2],
+                coef[k, i, 3],
+                coef[k, i, 4],
+            )
+            # derivatives at s = 0 and s = 1, divided by Δ^m
+            s = 1.0
+            jmp[k, i, 0] -= c0
+            jmp[k + 1, i, 0] += c0 + c1 + c2 + c3 + c4
+            s = inv
+            jmp[k, i, 1] -= c1 * s
+            jmp[k + 1, i, 1] += (c1 + 2.0 * c2 + 3.0 * c3 + 4.0 * c4) * s
+            s *= inv
+            jmp[k, i, 2] -= 2.0 * c2 * s
+            jmp[k + 1, i, 2] += (2.0 * c2 + 6.0 * c3 + 12.0 * c4) * s
+            s *= inv
+            jmp[k, i, 3] -= 6.0 * c3 * s
+            jmp[k + 1, i, 3] += (6.0 * c3 + 24.0 * c4) * s
+            s *= inv
+            jmp[k, i, 4] -= 24.0 * c4 * s
+            jmp[k + 1, i, 4] += 24.0 * c4 * s
+    # the asymptotic tails cancel the value and first-derivative end terms
+    for i in range(nc):
+        if tail_lo:
+            jmp[0, i, 0] = 0.0
+            jmp[0, i, 1] = 0.0
+        if tail_hi:
+            jmp[npt - 1, i, 0] = 0.0
+            jmp[npt - 1, i, 1] = 0.0
+    return dmin
+
+
+@nb.njit(nogil=True, cache=True)
+def _moments(theta, er, ei, mr, mi):
+    # M_m(θ) = ∫₀¹ s^m e^{iθs} ds, m = 0..4
+    if theta < _SERIES_THETA:
+        t2 = theta * theta
+        for m in range(5):
+            # Σ_j (iθ)^j/(j!(j+m+1)): Horner over j in θ², even → real, odd → imaginary
+            accr = 0.0
+            acci = 0.0
+            for jj in range(_N_SERIES - 1, -1, -1):
+                cterm = _INV_FACT[jj] / (jj + m + 1)
+                if jj % 2 == 0:
+                    accr = accr * t2 + (cterm if (jj // 2) % 2 == 0 else -cterm)
+                else:
+                    acci = acci * t2 + (cterm if (jj // 2) % 2 == 0 else -cterm)
+            mr[m] = accr
+            mi[m] = acci * theta
+    else:
+        u = 1.0 / theta  # 1/(iθ) = −i u
+        mr[0] = ei * u
+        mi[0] = -(er - 1.0) * u
+        for m in range(1, 5):
+            # M_m = (e^{iθ} − m M_{m−1})/(iθ)
+            xr = er - m * mr[m - 1]
+            xi = ei - m * mi[m - 1]
+            mr[m] = xi * u
+            mi[m] = -xr * u
+
+
+@nb.njit(nogil=True, cache=True)
+def filon_sum(
+    phi, coef, omega, uniform, reseed, tail_lo, tail_hi, quartic, phase0, pre, pim, out_re, out_im
+):
+    """Filon-type sum I(ω_j) = ∫ q e^{iωφ} dφ of a piecewise polynomial, all energies.
+
+    Two evaluations of the same rule: per step with the moments M_m(θ) (used
+    when some step has ωΔ < ``_THETA_JUMP``), and, when every step advances by
+    ωΔ ≥ ``_THETA_JUMP``, the equivalent node sum from repeated integration by
+    parts, Σ_k e^{iωφ_k} Σ_m (−1)^m [q^(m)]_k/(iω)^{m+1} (jumps of q^(m) at
+    the nodes), which costs a few multiply-adds per sample and loses at most
+    ~ε/θ⁵ to cancellation.
+
+    Parameters
+    ----------
+    phi : (N,) s, increasing. coef : (N−1, C, 5) amplitude polynomial per step.
+    omega : (n_e,) rad/s. uniform : bool, ``omega`` equally spaced (phasor
+        recurrence e^{iω_{j+1}φ} = e^{iω_jφ} e^{iΔωφ}, re-seeded every ``reseed``
+        energies to bound round-off). tail_lo, tail_hi : bool, continue the
+        amplitude to −∞ / +∞ asymptotically (two-term integration by parts).
+    quartic : bool, q' is continuous (the node sum skips the first-derivative jumps).
+    phase0 : s, absolute phase of φ = 0. pre, pim : (N,) scratch.
+    out_re, out_im : (n_e, C) results.
+    """
+    npt = phi.shape[0]
+    nc = coef.shape[1]
+    ne = omega.shape[0]
+    acc_r = np.zeros(nc)
+    acc_i = np.zeros(nc)
+    dre = np.empty(npt)
+    dim = np.empty(npt)
+    jmp = np.empty((npt, nc, 5))
+    dmin = _jumps(phi, coef, tail_lo, tail_hi, jmp)
+    # node-sum arrays, contiguous per order for the inner loop
+    j0 = np.empty((nc, npt))
+    j1 = np.empty((nc, npt))
+    j2 = np.empty((nc, npt))
+    j3 = np.empty((nc, npt))
+    j4 = np.empty((nc, npt))
+    for i in range(nc):
+        for k in range(npt):
+            j0[i, k] = jmp[k, i, 0]
+            j1[i, k] = jmp[k, i, 1]
+            j2[i, k] = jmp[k, i, 2]
+            j3[i, k] = jmp[k, i, 3]
+            j4[i, k] = jmp[k, i, 4]
+        if quartic:
+            # interior first-derivative jumps vanish (to rounding); keep only the ends
+            for k in range(1, npt - 1):
+                j1[i, k] = 0.0
+    mr = np.empty(5)
+    mi = np.empty(5)
+    if uniform and ne > 1:
+        dw = omega[1] - omega[0]
+        for k in range(npt):
+            dre[k] = math.cos(dw * phi[k])
+            dim[k] = math.sin(dw * phi[k])
+    for j in range(ne):
+        w = omega[j]
+        if (not uniform) or j % reseed == 0:
+            for k in range(npt):
+                pre[k] = math.cos(w * phi[k])
+                pim[k] = math.sin(w * phi[k])
+        else:
+            for k in range(npt):
+                a = pre[k] * dre[k] - pim[k] * dim[k]
+                pim[k] = pre[k] * dim[k] + pim[k] * dre[k]
+                pre[k] = a
+        inv_w = 1.0 / w
+        if w * dmin >= _THETA_JUMP:
+            iw2 = inv_w * inv_w
+            iw3 = iw2 * inv_w
+            iw4 = iw3 * inv_w
+            iw5 = iw4 * inv_w
+            for i in range(nc):
+                if quartic:
+                    s2r, s2i, s3r, s3i, s4r, s4i = _node_sums(pre, pim, j2[i], j3[i], j4[i])
+                else:
+                    # a quadratic has no third or fourth derivatives
+                    s2r, s2i, _, _ = _node_sums01(pre, pim, j2[i], j2[i])
+                    s3r = s3i = s4r = s4i = 0.0
+                s0r = 0.0
+                s0i = 0.0
+                s1r = 0.0
+                s1i = 0.0
+                if quartic:
+                    # q and q' are continuous inside: values and slopes only at the ends
+                    for k in (0, npt - 1):
+                        s0r += j0[i, k] * pre[k]
+                        s0i += j0[i, k] * pim[k]
+                        s1r += j1[i, k] * pre[k]
+                        s1i += j1[i, k] * pim[k]
+                else:
+                    # the quadratic rule may carry value jumps (a path cut inside a field
+                    # joined to its straight tail), so all nodes enter
+                    s0r, s0i, s1r, s1i = _node_sums01(pre, pim, j0[i], j1[i])
+                # factors of orders 0..4: −i/ω, 1/ω², i/ω³, −1/ω⁴, −i/ω⁵
+                acc_r[i] = s0i * inv_w + s1r * iw2 - s2i * iw3 - s3r * iw4 + s4i * iw5
+                acc_i[i] = -s0r * inv_w + s1i * iw2 + s2r * iw3 - s3i * iw4 - s4r * iw5
+        else:
+            for i in range(nc):
+                acc_r[i] = 0.0
+                acc_i[i] = 0.0
+            for k in range(npt - 1):
+                delta = phi[k + 1] - phi[k]
+                theta = w * delta
+                er = pre[k + 1] * pre[k] + pim[k + 1] * pim[k]
+                ei = pim[k + 1] * pre[k] - pre[k + 1] * pim[k]
+                _moments(theta, er, ei, mr, mi)
+                cr = pre[k] * delta
+                ci = pim[k] * delta
+                for i in range(nc):
+                    sr = 0.0
+                    si = 0.0
+                    for m in range(5):
+                        sr += coef[k, i, m] * mr[m]
+                        si += coef[k, i, m] * mi[m]
+                    acc_r[i] += sr * cr - si * ci
+                    acc_i[i] += sr * ci + si * cr
+            for i in range(nc):
+                # asymptotic tails: −(value and slope end terms) of the node form
+                for k, on in ((0, tail_lo), (npt - 1, tail_hi)):
+                    if on:
+                        sgn = -1.0 if k == 0 else 1.0
+                        # end value and slope of q from the adjacent step
+                        kk = 0 if k == 0 else npt - 2
+                        d = phi[kk + 1] - phi[kk]
+                        if k == 0:
+                            val = coef[kk, i, 0]
+                            slope = coef[kk, i, 1] / d
+                        else:
+                            val = 0.0
+                            slope = 0.0
+                            for m in range(5):
+                                val += coef[kk, i, m]
+                                slope += m * coef[kk, i, m]
+                            slope /= d
+                        # the node form's end terms are sgn·e^{iωφ}(−i val/ω + slope/ω²); add their negative
+                        tr = -sgn * slope * inv_w * inv_w
+                        ti = sgn * val * inv_w
+                        acc_r[i] += tr * pre[k] - ti * pim[k]
+                        acc_i[i] += tr * pim[k] + ti * pre[k]
+        # absolute phase reference e^{iωφ_0}
+        cr = math.cos(w * phase0)
+        ci = math.sin(w * phase0)
+        for i in range(nc):
+            out_re[j, i] = acc_r[i] * cr - acc_i[i] * ci
+            out_im[j, i] = acc_r[i] * ci + acc_i[i] * cr
+
+
+@nb.njit(nogil=True, cache=True, fastmath={"contract", "reassoc"})
+def _node_sums(pre, pim, a, b, d):
+    s2r = 0.0
+    s2i = 0.0
+    s3r = 0.0
+    s3i = 0.0
+    s4r = 0.0
+    s4i = 0.0
+    for k in range(pre.shape[0]):
+        p = pre[k]
+        q = pim[k]
+        s2r += a[k] * p
+        s2i += a[k] * q
+        s3r += b[k] * p
+        s3i += b[k] * q
+        s4r += d[k] * p
+        s4i += d[k] * q
+    return s2r, s2i, s3r, s3i, s4r, s4i
+
+
+@nb.njit(nogil=True, cache=True, fastmath={"contract", "reassoc"})
+def _node_sums01(pre, pim, a, b):
+    s0r = 0.0
+    s0i = 0.0
+    s1r = 0.0
+    s1i = 0.0
+    for k in range(pre.shape[0]):
+        s0r += a[k] * pre[k]
+        s0i += a[k] * pim[k]
+        s1r += b[k] * pre[k]
+        s1i += b[k] * pim[k]
+    return s0r, s0i, s1r, s1i
+
+
+@nb.njit(nogil=True, cache=True)
+def far_field_pixels(
+    nvec, t, r, beta, bdot, bddot, ig2, c_light, omega, uniform, reseed, out_re, out_im
+):
+    """Far-field integral ∫ n×((n−β)×β̇)/κ² e^{iω(t − n·r/c)} dt for many directions.
+
+    Parameters
+    ----------
+    nvec : (P, 3) unit directions. Trajectory samples t, r, beta, bdot, bddot, ig2.
+    omega : (n_e,) rad/s. out_re, out_im : (P, n_e, 3) results (s⁰: the
+        integral of an amplitude in 1/s over dt), z from transversality E·n = 0.
+    """
+    npt = t.shape[0]
+    phi = np.empty(npt)
+    f = np.empty((npt, 2))
+    fp = np.empty((npt, 2))
+    dg = np.empty((npt - 1, 2))
+    coef = np.empty((npt - 1, 2, 5))
+    pre = np.empty(npt)
+    pim = np.empty(npt)
+    ne = omega.shape[0]
+    ore = np.empty((ne, 2))
+    oim = np.empty((ne, 2))
+    for p in range(nvec.shape[0]):
+        n = nvec[p]
+        phase0 = far_amplitudes(n, t, r, beta, bdot, bddot, ig2, c_light, phi, f, fp, dg)
+        quartic_coefficients(phi, f, fp, dg, coef)
+        filon_sum(phi, coef, omega, uniform, reseed, False, False, True, phase0, pre, pim, ore, oim)
+        for j in range(ne):
+            out_re[p, j, 0] = ore[j, 0]
+            out_re[p, j, 1] = ore[j, 1]
+            out_im[p, j, 0] = oim[j, 0]
+            out_im[p, j, 1] = oim[j, 1]
+            # the far field is transverse: E·n = 0
+            out_re[p, j, 2] = -(n[0] * ore[j, 0] + n[1] * ore[j, 1]) / n[2]
+            out_im[p, j, 2] = -(n[0] * oim[j, 0] + n[1] * oim[j, 1]) / n[2]
+
+
+@nb.njit(nogil=True, cache=True)
+def far_power_pixels(nvec, h, wg, betag, bdotg, ig2g, out):
+    """∫ |n×((n−β)×β̇)|²/κ⁵ dt per direction (Jackson 14.38 integrated over time).
+
+    Parameters
+    ----------
+    nvec : (P, 3). h : (M,) step lengths, s. wg : (2,) Gauss weights on [0, 1].
+    betag, bdotg : (M, 2, 3), ig2g : (M, 2): trajectory at the Gauss points.
+    out : (P,) result, 1/s (the time integral of 1/s²).
+    """
+    for p in range(nvec.shape[0]):
+        nx, ny, nz = nvec[p, 0], nvec[p, 1], nvec[p, 2]
+        acc = 0.0
+        for k in range(h.shape[0]):
+            s = 0.0
+            for g in range(2):
+                bx, by, bz = betag[k, g, 0], betag[k, g, 1], betag[k, g, 2]
+                ax, ay, az = bdotg[k, g, 0], bdotg[k, g, 1], bdotg[k, g, 2]
+                kap = _kappa(nx, ny, nz, bx, by, bz, ig2g[k, g])
+                ndot = nx * ax + ny * ay + nz * az
+                vx = (nx - bx) * ndot - ax * kap
+                vy = (ny - by) * ndot - ay * kap
+                vz = -(nx * vx + ny * vy) / nz  # V ⊥ n exactly
+                k2 = kap * kap
+                s += wg[g] * (vx * vx + vy * vy + vz * vz) / (k2 * k2 * kap)
+            acc += h[k] * s
+        out[p] = acc
+
+
+@nb.njit(nogil=True, cache=True)
+def near_power_pixels(points, h, wg, rg, betag, bdotg, ig2g, c_light, out):
+    """∫ |E_rad|² n_z κ dt per point, E_rad per q/(4πε0) (acceleration field only).
+
+    Parameters
+    ----------
+    points : (P, 3) m. h, wg, rg, betag, bdotg, ig2g : as in :func:`far_power_pixels`.
+    out : (P,) result.
+    """
+    for p in range(points.shape[0]):
+        px, py, pz = points[p, 0], points[p, 1], points[p, 2]
+        acc = 0.0
+        for k in range(h.shape[0]):
+            s = 0.0
+            for g in range(2):
+                dx = px - rg[k, g, 0]
+                dy = py - rg[k, g, 1]
+                dz = pz - rg[k, g, 2]
+                rr = math.sqrt(dx * dx + dy * dy + dz * dz)
+                nx, ny, nz = dx / rr, dy / rr, dz / rr
+                bx, by, bz = betag[k, g, 0], betag[k, g, 1], betag[k, g, 2]
+                ax, ay, az = bdotg[k, g, 0], bdotg[k, g, 1], bdotg[k, g, 2]
+                kap = _kappa(nx, ny, nz, bx, by, bz, ig2g[k, g])
+                ndot = nx * ax + ny * ay + nz * az
+                vx = (nx - bx) * ndot - ax * kap
+                vy = (ny - by) * ndot - ay * kap
+                vz = -(nx * vx + ny * vy) / nz
+                k3 = kap * kap * kap
+                e2 = (vx * vx + vy * vy + vz * vz) / (k3 * k3 * c_light * c_light * rr * rr)
+                s += wg[g] * e2 * nz * kap
+            acc += h[k] * s
+        out[p] = acc
+
+
+@nb.njit(nogil=True, cache=True)
+def lienard_energy(h, wg, gammag, betag, bdotg):
+    """∫ γ⁶(|β̇|² − |β×β̇|²) dt = ∫ γ⁴|β̇|² + γ⁶(β·β̇)² dt (Jackson 14.26), 1/s."""
+    acc = 0.0
+    for k in range(h.shape[0]):
+        s = 0.0
+        for g in range(2):
+            gm = gammag[k, g]
+            bx, by, bz = betag[k, g, 0], betag[k, g, 1], betag[k, g, 2]
+            ax, ay, az = bdotg[k, g, 0], bdotg[k, g, 1], bdotg[k, g, 2]
+            bb = bx * ax + by * ay + bz * az
+            g2 = gm * gm
+            s += wg[g] * (g2 * g2 * (ax * ax + ay * ay + az * az) + g2 * g2 * g2 * bb * bb)
+        acc += h[k] * s
+    return acc
