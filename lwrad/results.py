@@ -68,7 +68,6 @@ from __future__ import annotations
 
 import contextlib
 import datetime as _dt
-import errno
 import hashlib
 import json
 import os
@@ -87,6 +86,7 @@ import h5py
 import numpy as np
 
 from lwrad._version import __version__
+from lwrad.atomic import atomic_output
 from lwrad.constants import CODATA_EDITION
 from lwrad.errors import InputError
 
@@ -737,96 +737,6 @@ def _size(n) -> str:
         if abs(n) >= size:
             return f"{n / size:.3g} {unit}"
     return f"{int(n)} B"
-
-
-#: errors of the target file system that are the user's to fix (not lwrad bugs)
-_DISK_ERRNOS = {errno.ENOSPC, errno.EDQUOT, errno.EROFS, errno.EACCES, errno.EPERM}
-
-
-@contextlib.contextmanager
-def atomic_output(path, *, overwrite: bool = False):
-    """Yield a temporary path in ``path``'s directory; on success move it to ``path``.
-
-    Use as ``with atomic_output(path) as tmp: write(tmp)``. On an exception the
-    temporary file is removed and ``path`` is untouched.
-
-    The temporary name starts with a dot and ends in ``.tmp`` so it never looks
-    like a result. Without ``overwrite`` the move is a hard link (fails if the
-    target appeared meanwhile), so an existing file is never replaced.
-    """
-    path = Path(path)
-    # mkstemp creates the file private (0600); give it the mode a plain open() would
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    except OSError as exc:
-        raise _disk_error(exc, path) from None
-    os.close(fd)
-    tmp_path = Path(tmp)
-    try:
-        try:
-            yield tmp_path
-            with open(tmp_path, "rb+") as fh:
-                os.fsync(fh.fileno())
-        except OSError as exc:
-            if exc.errno not in _DISK_ERRNOS:
-                raise
-            raise _disk_error(exc, path) from None
-        os.chmod(tmp_path, 0o666 & ~_umask())
-        if overwrite:
-            os.replace(tmp_path, path)
-        else:
-            try:
-                os.link(tmp_path, path)
-            except FileExistsError:
-                raise InputError(
-                    "output file exists; not overwritten (use --force to replace it)",
-                    source=str(path),
-                ) from None
-            except OSError:  # file systems without hard links: check, then rename
-                if path.exists():
-                    raise InputError(
-                        "output file exists; not overwritten", source=str(path)
-                    ) from None
-                os.replace(tmp_path, path)
-        _fsync_dir(path.parent)
-    finally:
-        with contextlib.suppress(FileNotFoundError):
-            tmp_path.unlink()
-
-
-def _disk_error(exc: OSError, path: Path) -> InputError:
-    """A clear message for a full, read-only or forbidden target (the file is not written)."""
-    if exc.errno in (errno.ENOSPC, errno.EDQUOT):
-        what = "no space left on the device (or quota exceeded)"
-    elif exc.errno == errno.EROFS:
-        what = "the file system is read-only"
-    else:
-        what = f"cannot write there ({os.strerror(exc.errno) if exc.errno else exc})"
-    return InputError(
-        f"{what}; nothing was written under this name (a run's checkpoint, if any, is kept: "
-        "free space, then continue with --resume)",
-        source=str(path),
-    )
-
-
-def _umask() -> int:
-    try:  # Linux reports it without changing it (os.umask would, process-wide)
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("Umask:"):
-                    return int(line.split()[1], 8)
-    except (OSError, ValueError):
-        pass
-    return 0o022  # common practice default where the process's umask cannot be read
-
-
-def _fsync_dir(directory: Path) -> None:
-    with contextlib.suppress(OSError):
-        fd = os.open(directory, os.O_RDONLY)
-        try:
-            os.fsync(fd)
-        finally:
-            os.close(fd)
 
 
 # ----------------------------------------------------------------------------- writing

@@ -254,7 +254,7 @@ def _save_tuning_plot(device, harmonics, k_range, path, force) -> str:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from lwrad.io._common import atomic_write
+    from lwrad.atomic import atomic_write
 
     odd = [int(n) for n in harmonics if n % 2 == 1]
     if not odd:

@@ -51,7 +51,7 @@ def write_csv(table, path, *, overwrite: bool = False) -> str:
     str
         The absolute path written.
     """
-    from lwrad.io._common import atomic_write
+    from lwrad.atomic import atomic_write
 
     _refuse_existing(path, overwrite)
 
@@ -90,7 +90,7 @@ def write_hdf5(table, path, *, overwrite: bool = False) -> str:
     import h5py
 
     from lwrad._version import __version__
-    from lwrad.io._common import atomic_write
+    from lwrad.atomic import atomic_write
 
     _refuse_existing(path, overwrite)
 

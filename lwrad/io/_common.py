@@ -11,13 +11,13 @@ from __future__ import annotations
 
 import contextlib
 import os
-import tempfile
 import zipfile
 import zlib
 from collections.abc import Callable
 
 import numpy as np
 
+from lwrad.atomic import atomic_write
 from lwrad.constants import particle_properties
 from lwrad.errors import InputError
 
@@ -107,72 +107,6 @@ def foreign_errors(
         raise InputError(
             f"{what}: {type(exc).__name__}: {exc}", source=source, location=location
         ) from None
-
-
-def atomic_write(
-    path, write: Callable[[str], None], *, overwrite: bool = False, suffix: str = ""
-) -> str:
-    """Write a file atomically: ``write(temp_path)``, then rename onto ``path``.
-
-    The temporary file lives in the target directory (so the rename is atomic
-    on one file system) and is removed on failure. Without ``overwrite`` an
-    existing ``path`` is never replaced, not even by a race: the final step is
-    a hard link, which fails if the name exists.
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-        Target file.
-    write : callable
-        Writes the complete file at the temporary path it is given.
-    overwrite : bool
-        Replace an existing ``path``.
-    suffix : str
-        Ending of the temporary name (some libraries pick the format by it).
-
-    Returns
-    -------
-    str
-        The path written.
-    """
-    target = os.path.abspath(os.fspath(path))
-    directory = os.path.dirname(target)
-    if not os.path.isdir(directory):
-        raise InputError("the directory does not exist", source=directory)
-    if os.path.exists(target) and not overwrite:
-        raise InputError("the file exists; pass overwrite=True to replace it", source=target)
-    fd, tmp = tempfile.mkstemp(
-        prefix=f".{os.path.basename(target)}.", suffix=".tmp" + suffix, dir=directory
-    )
-    os.close(fd)
-    try:
-        write(tmp)
-        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the user's usual permissions
-        if overwrite:
-            os.replace(tmp, target)
-        else:
-            try:
-                os.link(tmp, target)
-            except FileExistsError:
-                raise InputError(
-                    "the file exists; pass overwrite=True to replace it", source=target
-                ) from None
-            except OSError:  # file systems without hard links
-                if os.path.exists(target):
-                    raise InputError(
-                        "the file exists; pass overwrite=True to replace it", source=target
-                    ) from None
-                os.replace(tmp, target)
-    finally:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-    return target
-
-
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
 
 
 def resolve_particle(particle=None, *, charge=None, mass=None, source=None) -> tuple[float, float]:
