@@ -32,6 +32,7 @@ import h5py
 import numpy as np
 import pytest
 
+from lwrad import atomic
 from lwrad.errors import InputError
 from lwrad.jobs.runner import run_job
 from lwrad.jobs.schema import load_job, parse_job
@@ -43,7 +44,7 @@ JOB = """
 kind = "magnets"
 energy = {energy}
 current = "0.3 A"
-samples_per_period = 16
+samples_per_period = 32
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"
@@ -251,26 +252,47 @@ def test_non_finite_and_negative_numbers_refused(kw, key, tmp_path):
         parse_job(_job(**kw), base_dir=tmp_path)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="known gap (reported to the jobs helper): huge counts and overflowing unit "
-    "conversions pass the validator: count = 1e12 raises numpy's MemoryError, "
-    "count = 2**63-1 an IndexError, '1e300 GeV' becomes energy inf, n_periods = 2**63-1 is "
-    "accepted",
-)
 @pytest.mark.parametrize(
-    "kw",
+    "kw, key",
     [
-        {"photon_energy": '{ start = "1 keV", stop = "2 keV", count = 1000000000000 }'},
-        {"photon_energy": '{ start = "1 keV", stop = "2 keV", count = 9223372036854775807 }'},
-        {"energy": '"1e300 GeV"'},
-        {"n_periods": "9223372036854775807"},
+        (
+            {"photon_energy": '{ start = "1 keV", stop = "2 keV", count = 1000000000000 }'},
+            "photon_energy.count",
+        ),
+        (
+            {"photon_energy": '{ start = "1 keV", stop = "2 keV", count = 9223372036854775807 }'},
+            "photon_energy.count",
+        ),
+        # 10 000 001 values: one above the documented cap (lwrad.jobs.schema.MAX_RANGE_COUNT)
+        (
+            {"photon_energy": '{ start = "1 keV", stop = "2 keV", count = 10000001 }'},
+            "photon_energy.count",
+        ),
+        # finite in joules (1.6e290 J), infinite in eV: the overflow happens after parse_quantity
+        ({"energy": '"1e300 GeV"'}, "sources.u.energy"),
+        ({"photon_energy": '"1e306 keV"'}, "photon_energy"),
+        ({"n_periods": "9223372036854775807"}, "n_periods"),
+        ({"n_periods": "100001"}, "n_periods"),
     ],
-    ids=["count-1e12", "count-2^63", "energy-overflow", "n_periods-2^63"],
+    ids=[
+        "count-1e12",
+        "count-2^63",
+        "count-cap+1",
+        "energy-overflow",
+        "photon-energy-overflow",
+        "n_periods-2^63",
+        "n_periods-cap+1",
+    ],
 )
-def test_huge_numbers_refused_by_the_validator(kw, tmp_path):
-    with pytest.raises(InputError):
+def test_huge_numbers_refused_by_the_validator(kw, key, tmp_path):
+    with pytest.raises(InputError, match=key.replace(".", r"\.")):
         parse_job(_job(**kw), base_dir=tmp_path)
+
+
+def test_caps_admit_their_largest_value(tmp_path):
+    """The caps are not off by one: the largest allowed n_periods validates."""
+    job = parse_job(_job(n_periods="100000"), base_dir=tmp_path)
+    assert job.sources["u"].magnets[0]["n_periods"] == 100_000
 
 
 # ----------------------------------------------------------------------------- result files
@@ -443,7 +465,7 @@ def test_disk_full_mid_run_keeps_the_checkpoint_for_resume(tmp_path, monkeypatch
     real_save = results.save
 
     def full(*args, **kwargs):
-        raise results._disk_error(OSError(errno.ENOSPC, "No space left on device"), tmp_path)
+        raise atomic._disk_error(OSError(errno.ENOSPC, "No space left on device"), tmp_path)
 
     monkeypatch.setattr(results, "save", full)
     with pytest.raises(InputError, match="no space left"):
