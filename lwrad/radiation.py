@@ -36,6 +36,7 @@ import math
 import numpy as np
 
 from lwrad.constants import c, epsilon_0, hbar, photon_energy_to_omega
+from lwrad.engine.beam_sums import coherency_moments
 from lwrad.errors import InputError
 from lwrad.observers import (
     AngularGrid,
@@ -53,6 +54,7 @@ __all__ = [
     "Result",
     "RectangularAperture",
     "CircularAperture",
+    "merge_diagnostics",
 ]
 
 _CHUNK_PIXELS = 64  # pixels per parallel task (fixed: results never depend on n_jobs)
@@ -121,6 +123,14 @@ class Result:
         Particles the stored field stands for (1, or Σ w for a coherent bunch).
     diagnostics : dict
         Convergence figures achieved.
+    standard_error : ndarray (n_e, ny, nx) or None
+        Standard error of the mean intensity |Ẽ|² per pixel (same units as
+        the moments) for an incoherent bunch: the spread of its
+        macro-particles (:class:`lwrad.engine.beam_sums.IncoherentSum`).
+    parts : dict
+        For a bunch: part name → Result (``"incoherent"``, and with
+        ``coherent=True`` also ``"coherent"`` and ``"total"``), see
+        :class:`lwrad.beam_radiation.BeamResult`; empty otherwise.
     """
 
     def __init__(
@@ -133,6 +143,7 @@ class Result:
         charge,
         particles_per_result=1.0,
         diagnostics=None,
+        standard_error=None,
     ):
         self.photon_energy = np.asarray(photon_energy, float)
         self.observer = observer
@@ -140,11 +151,13 @@ class Result:
         if moments is None:
             if field is None:
                 raise InputError("a Result needs a field or intensity moments")
-            moments = _moments(field)
+            moments = coherency_moments(field)
         self.moments = moments
         self.charge = abs(float(charge))
         self.particles_per_result = float(particles_per_result)
         self.diagnostics = dict(diagnostics or {})
+        self.standard_error = standard_error
+        self.parts = {}
 
     # -- units ---------------------------------------------------------------
     @property
@@ -279,6 +292,8 @@ class Result:
         }
         if self.field is not None:
             out["field"] = (self.field, self.field_unit)
+        if self.standard_error is not None:
+            out["intensity_standard_error"] = (self.standard_error, unit2)
         return out
 
     @classmethod
@@ -299,13 +314,18 @@ class Result:
                 charge=attrs["charge"],
                 particles_per_result=attrs.get("particles_per_result", 1.0),
                 diagnostics=attrs.get("diagnostics"),
+                standard_error=val("intensity_standard_error"),
             )
         except KeyError as exc:
             raise InputError(f"result description lacks {exc}") from None
 
     @classmethod
     def concatenate_pixels(cls, results, observer) -> Result:
-        """Assemble results computed on ``observer.take(chunk)`` (in pixel order) into one."""
+        """Assemble results computed on ``observer.take(chunk)`` (in pixel order) into one.
+
+        The chunks' diagnostics are merged by :func:`merge_diagnostics` (worst
+        error estimate, all-converged flag, summed event counts).
+        """
         results = list(results)
         if not results:
             raise InputError("no chunk results to assemble")
@@ -320,7 +340,11 @@ class Result:
         if all(r.field is not None for r in results):
             field = np.concatenate([r.field.reshape(n_e, -1, 3) for r in results], axis=1)
             field = field.reshape(n_e, ny, nx, 3)
-        diag = dict(first.diagnostics)
+        se = None
+        if all(r.standard_error is not None for r in results):
+            se = np.concatenate([r.standard_error.reshape(n_e, -1) for r in results], axis=1)
+            se = se.reshape(n_e, ny, nx)
+        diag = merge_diagnostics(r.diagnostics for r in results)
         return cls(
             first.photon_energy,
             observer,
@@ -329,6 +353,7 @@ class Result:
             charge=first.charge,
             particles_per_result=first.particles_per_result,
             diagnostics=diag,
+            standard_error=se,
         )
 
     def __repr__(self):
@@ -348,10 +373,73 @@ def _plain(obj):
     return obj
 
 
-def _moments(field):
-    ex, ey, ez = field[..., 0], field[..., 1], field[..., 2]
-    cross = ex * np.conj(ey)
-    return np.stack([np.abs(ex) ** 2, np.abs(ey) ** 2, np.abs(ez) ** 2, cross.real, cross.imag])
+#: diagnostics that count events per chunk: added when chunks are assembled
+_SUMMED_DIAGNOSTICS = ("n_not_converged", "n_pixels")
+#: diagnostics that say whether a target was met: all chunks must meet it
+_ALL_DIAGNOSTICS = ("converged", "all_converged")
+
+
+def merge_diagnostics(diagnostics) -> dict:
+    """Merge the diagnostics of pixel chunks into one, conservatively.
+
+    Flags (``converged``, ``all_converged``): False if any chunk is False,
+    True if all are True, else None (not tested). Event counts
+    (``n_not_converged``, ``n_pixels``): summed. Other numbers (error
+    estimates, refinement factors, sample counts, iteration maxima): the
+    maximum, the figure that bounds every chunk. Anything else: kept when
+    all chunks agree, else the list of distinct values in chunk order.
+    Maxima, sums and flags do not depend on how the pixels were cut, so the
+    merged figures are the same for any chunk size (nothing records the
+    number of chunks).
+
+    Parameters
+    ----------
+    diagnostics : iterable of dict
+        One per chunk, in chunk order.
+
+    Returns
+    -------
+    dict
+    """
+    diagnostics = [dict(d or {}) for d in diagnostics]
+    keys = list(dict.fromkeys(k for d in diagnostics for k in d))
+    out = {}
+    for key in keys:
+        values = [d[key] for d in diagnostics if key in d]
+        numbers = [v for v in values if v is not None]
+        if key in _ALL_DIAGNOSTICS or (numbers and all(isinstance(v, bool) for v in numbers)):
+            if any(v is False for v in values):
+                out[key] = False
+            elif all(v is True for v in values) and len(values) == len(diagnostics):
+                out[key] = True
+            else:
+                out[key] = None
+        elif numbers and all(
+            isinstance(v, int | float | np.integer | np.floating) and not isinstance(v, bool)
+            for v in numbers
+        ):
+            if key in _SUMMED_DIAGNOSTICS:
+                out[key] = sum(numbers)
+            else:
+                out[key] = max(numbers)
+            if isinstance(out[key], np.generic):
+                out[key] = out[key].item()
+        elif all(_same(v, values[0]) for v in values):
+            out[key] = values[0]
+        else:
+            distinct = []
+            for v in values:
+                if not any(_same(v, u) for u in distinct):
+                    distinct.append(v)
+            out[key] = distinct
+    return out
+
+
+def _same(a, b) -> bool:
+    try:
+        return bool(a == b)
+    except (TypeError, ValueError):  # arrays and the like: compare as plain data
+        return _plain(a) == _plain(b)
 
 
 # ---------------------------------------------------------------------------- radiate
@@ -428,6 +516,8 @@ def radiate(
         Relative accuracy goal of the sampling refinement (of the peak field).
     coherent : bool
         For a Bunch: add complex fields (Σ w_j Ẽ_j) instead of intensities.
+        A Bunch is summed by :func:`lwrad.beam_radiation.radiate_bunch`
+        (particles in fixed order, n_jobs threads over particles).
     refinement : float, optional
         Fix the sampling refinement factor F instead of choosing it (testing).
     tails : bool
@@ -436,6 +526,10 @@ def radiate(
     Returns
     -------
     Result
+        For a Bunch: ``.parts`` holds the incoherent (and coherent, total)
+        parts; an incoherent result carries ``.standard_error``; the
+        diagnostics add ``n_trajectories``, ``max_estimated_relative_error``
+        and ``all_converged`` over the particles.
     """
     if method not in _METHODS:
         raise InputError(f"method must be one of {_METHODS}, got {method!r}", location="method")
@@ -452,44 +546,73 @@ def radiate(
         raise InputError("n_jobs must be >= 1", location="n_jobs")
     omega = photon_energy_to_omega(energies)
     charge = abs(trajs[0].charge)
-    diags = []
     if not is_bunch:
         field, diag = _one_trajectory(
             trajs[0], observer, omega, tolerance, int(n_jobs), method, refinement, tails
         )
         return Result(energies, observer, field=field, charge=charge, diagnostics=diag)
-    wsum = float(weights.sum())
-    total_field = None
-    moments = None
-    for traj, w in zip(trajs, weights, strict=True):
-        if w == 0:
-            continue
-        field, diag = _one_trajectory(
-            traj, observer, omega, tolerance, int(n_jobs), method, refinement, tails
-        )
-        diags.append(diag)
-        if coherent:
-            total_field = w * field if total_field is None else total_field + w * field
-        else:
-            m = _moments(field) * (w / wsum)
-            moments = m if moments is None else moments + m
-    summary = {
-        "n_trajectories": len(diags),
-        "max_estimated_relative_error": max(
+    return _radiate_bunch(
+        source,
+        observer,
+        energies,
+        charge,
+        coherent,
+        int(n_jobs),
+        method,
+        tolerance,
+        refinement,
+        tails,
+    )
+
+
+def _radiate_bunch(
+    bunch, observer, energies, charge, coherent, n_jobs, method, tolerance, refinement, tails
+):
+    """A Bunch through :func:`lwrad.beam_radiation.radiate_bunch` (one place for the sums)."""
+    from lwrad.beam_radiation import radiate_bunch
+
+    options = dict(method=method, tolerance=tolerance, refinement=refinement, tails=tails)
+    # each particle's convergence figures; summarised below by max and all(), which do not
+    # depend on the order in which worker threads append them
+    diags = []
+
+    def field_of(traj, obs, pe):
+        one = radiate(traj, obs, pe, **options)
+        diags.append(one.diagnostics)
+        return one.field
+
+    br = radiate_bunch(
+        bunch, observer, energies, coherent=coherent, n_jobs=n_jobs, field_function=field_of
+    )
+    summary = dict(br.diagnostics)
+    summary.update(
+        n_trajectories=len(diags),
+        max_estimated_relative_error=max(
             (d.get("estimated_relative_error", 0.0) or 0.0) for d in diags
         ),
-        "all_converged": all(d.get("converged") is not False for d in diags),
-    }
+        all_converged=all(d.get("converged") is not False for d in diags),
+    )
+    br.diagnostics.update(summary)
     if coherent:
-        return Result(
+        result = Result(
             energies,
             observer,
-            field=total_field,
+            field=br.coherent_field,
             charge=charge,
-            particles_per_result=wsum,
+            particles_per_result=br.n_particles,
             diagnostics=summary,
         )
-    return Result(energies, observer, moments=moments, charge=charge, diagnostics=summary)
+    else:
+        result = Result(
+            energies,
+            observer,
+            moments=br.part("incoherent").moments,
+            charge=charge,
+            diagnostics=summary,
+            standard_error=br.incoherent_se,
+        )
+    result.parts = br.parts
+    return result
 
 
 # ---------------------------------------------------------------------------- power

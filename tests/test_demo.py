@@ -11,20 +11,28 @@ from lwrad.commands.demo import RESULT_NAME, demo_job_text
 from lwrad.jobs.schema import load_job, parse_job
 from lwrad.results import load
 
+QUICK_STUDIES = {"u25_spectrum", "u25_maps", "u25_power", "b1_spectrum"}
+
 
 def test_bundled_jobs_are_valid_and_marked_invented():
     for quick in (False, True):
         text = demo_job_text(quick)
         assert "INVENTED SCENARIO" in text
         job = parse_job(text, base_dir=".")
-        assert {s.name for s in job.studies} == {
-            "u25_spectrum",
-            "u25_maps",
-            "u25_power",
-            "b1_spectrum",
-        }
+        # the full demo adds a beam study (the undulator seen by the whole invented beam)
+        expected = QUICK_STUDIES if quick else QUICK_STUDIES | {"u25_beam"}
+        assert {s.name for s in job.studies} == expected
+    full_job = parse_job(demo_job_text(False), base_dir=".")
+    assert full_job.study("u25_beam").beam_method == "convolution"
+    assert full_job.sources["sm_u25_beam"].beam is not None
     full, quick = (tomllib.loads(demo_job_text(q)) for q in (False, True))
-    assert full["sources"] == quick["sources"]  # the quick form changes grids only
+    beam_source = full["sources"].pop("sm_u25_beam")
+    assert (
+        "invented" in demo_job_text(False).split("[sources.sm_u25_beam]")[0].rsplit("\n\n", 1)[-1]
+    )
+    assert full["sources"] == quick["sources"]  # otherwise the quick form changes grids only
+    # the beam's reference electron is SM-U25 itself
+    assert beam_source["magnet"] == full["sources"]["sm_u25"]["magnet"]
 
 
 def test_demo_quick_writes_job_result_and_figures(tmp_path, capsys):

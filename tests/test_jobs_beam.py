@@ -28,7 +28,7 @@ SOURCE = """
 kind = "magnets"
 energy = "2.5 GeV"
 current = "0.3 A"
-samples_per_period = 16
+samples_per_period = 32
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"
@@ -523,3 +523,29 @@ def test_fuzz_beam_tables_raise_only_input_error(changes):
         return
     params = job.sources["u"].beam.parameters
     assert all(np.all(np.isfinite(v)) for v in params.values() if isinstance(v, float | int))
+
+
+def test_info_prints_the_beam_parameters(tmp_path):
+    # `lwrad info JOB` lists the beam of a source; divergences σ' = sqrt(ε/β) for α = 0
+    # (Twiss parameters, γ_T = (1 + α²)/β): sqrt(4e-9/10) = 20 µrad, sqrt(40e-12/3) = 3.651 µrad
+    import io
+
+    from lwrad.commands.info import describe_job
+
+    path = tmp_path / "job.toml"
+    path.write_text(
+        _job(
+            'energy_spread = 0.001\nbunch_length = "3 mm"\nmethod = "monte_carlo"\n'
+            "particles = 12\nseed = 5",
+            _angular(n=3),
+        )
+    )
+    out = io.StringIO()
+    describe_job(path, workers=1, calibration=False, out=out)
+    text = out.getvalue()
+    assert "beam emittance 4 × 0.04 nm·rad" in text
+    assert "beta 10 × 3 m" in text
+    assert "rms divergence 20 × 3.651 µrad" in text
+    assert "energy spread 0.1 %" in text
+    assert "bunch length 3 mm rms" in text
+    assert "Monte Carlo: 12 particles, seed 5" in text

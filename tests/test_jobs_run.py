@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from lwrad.errors import InputError
-from lwrad.jobs.planning import check_memory, estimate_memory
+from lwrad.jobs.planning import check_memory, estimate_memory, estimate_output_bytes
 from lwrad.jobs.runner import prepare, run_job
 from lwrad.jobs.schema import load_job, parse_job
 from lwrad.results import load
@@ -22,7 +22,7 @@ title = "tiny test job"
 kind = "magnets"
 energy = "2.5 GeV"
 current = "0.3 A"
-samples_per_period = 16
+samples_per_period = 32
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"
@@ -176,7 +176,7 @@ def test_trajectory_file_source_hashed_and_reported(tmp_path):
     from lwrad.magnets import PlanarUndulator
     from lwrad.tracking import track
 
-    traj = track(PlanarUndulator(0.025, 5, 0.6), 2.5e9, samples_per_period=16)
+    traj = track(PlanarUndulator(0.025, 5, 0.6), 2.5e9, samples_per_period=32)
     (tmp_path / "data").mkdir()
     write_trajectory(traj, tmp_path / "data" / "u.h5")
     (tmp_path / "job.toml").write_text(
@@ -286,10 +286,14 @@ def test_memory_estimate_grows_with_the_job():
 
     small = estimate_memory(plan_job(base), n, workers=1, backend="serial")
     large = estimate_memory(plan_job(bigger), n, workers=1, backend="serial")
-    # result arrays: 4 → 400 photon energies on 15 pixels, (3 × 48 + 8 + 32) bytes each
+    # result arrays: 4 → 400 photon energies on 15 pixels, 3 copies of field (48 bytes) and
+    # intensity moments (40 bytes), + flux density 8 + Stokes 32 bytes each (planning's model)
     assert large.breakdown["result arrays"] - small.breakdown["result arrays"] == 396 * 15 * (
-        3 * 48 + 8 + 32
+        3 * (48 + 40) + 8 + 32
     )
+    # disk: checkpoint + final file, twice the stored arrays (48 + 2 × 40 + 8 + 32 bytes each)
+    grow = estimate_output_bytes(plan_job(bigger)) - estimate_output_bytes(plan_job(base))
+    assert grow == 2 * 396 * 15 * (48 + 2 * 40 + 8 + 32)
     procs = estimate_memory(plan_job(base), n, workers=2, backend="processes")
     threads = estimate_memory(plan_job(base), n, workers=2, backend="threads")
     assert procs.total > threads.total  # each process carries its own interpreter
@@ -306,3 +310,50 @@ def test_progress_log_lines_when_not_a_terminal(tiny, tmp_path):
     quiet = io.StringIO()
     run_job(tiny, tmp_path / "q.h5", workers=1, stream=quiet, quiet=True)
     assert quiet.getvalue() == ""
+
+
+def test_too_little_disk_space_refused_before_any_work(tiny, tmp_path, monkeypatch):
+    # Simulated (monkeypatched free space): one byte less than the estimate of checkpoint +
+    # result is refused with the figure, and nothing is computed or written.
+    import shutil
+    from collections import namedtuple
+
+    from lwrad.jobs.planning import plan_job
+
+    need = estimate_output_bytes(plan_job(load_job(tiny)))
+    usage = namedtuple("usage", "total used free")
+    monkeypatch.setattr(shutil, "disk_usage", lambda p: usage(10 * need, 9 * need, need - 1))
+    with pytest.raises(InputError, match="not enough free space"):
+        _run(tiny, tmp_path / "r.h5")
+    assert not (tmp_path / "r.h5").exists()
+    assert not (tmp_path / "r.h5.parts").exists()
+
+
+def test_retarded_time_figures_in_the_fields_case(tiny, tmp_path):
+    run = load(_run(tiny, tmp_path / "r.h5"))
+    figures = run.cases["td"].attrs["retarded_time"]
+    assert figures["n_not_converged"] == 0
+    # every (time, point) pair is counted once: 8 times × 3 points, split into 1 chunk
+    assert figures["n_inside"] + figures["n_before"] + figures["n_after"] == 8 * 3
+    assert figures["max_iterations"] >= 1
+
+
+def test_sampling_chosen_once_per_study(tiny):
+    # one refinement factor per study, carried by every chunk; the joined chunks equal one
+    # solver call on the whole grid with that factor, bit for bit (the solver's per-pixel contract)
+    from lwrad.jobs.runner import choose_refinements, make_work
+    from lwrad.jobs.tasks import compute
+    from lwrad.radiation import Result, radiate
+
+    prep = prepare(load_job(tiny))
+    choose_refinements(prep)
+    assert set(prep.refinements) == {"spec"}  # power and fields studies do not sample spectra
+    factor, diag = prep.refinements["spec"]
+    assert diag["refinement_factor"] == factor
+    works = [make_work(prep, c) for c in prep.plan.chunks_of("spec", "spectra")]
+    assert len(works) > 1 and all(w.refinement == factor for w in works)
+    observer = prep.observers["spec"]
+    joined = Result.concatenate_pixels([compute(w) for w in works], observer)
+    energies = prep.job.study("spec").photon_energy
+    whole = radiate(prep.sources["u"], observer, energies, refinement=factor)
+    assert np.array_equal(joined.field, whole.field)

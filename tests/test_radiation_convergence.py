@@ -100,3 +100,28 @@ def test_bunch_incoherent_and_coherent(und):
     # I/(5|q|) times per second, so the flux density is 25/5 = 5 × one particle's
     np.testing.assert_allclose(inc.flux_density(1.0), one.flux_density(1.0), rtol=1e-12)
     np.testing.assert_allclose(coh.flux_density(1.0), 5 * one.flux_density(1.0), rtol=1e-12)
+
+
+@pytest.mark.parametrize("kind", ["angular", "screen"])
+def test_refinement_chosen_once_reproduces_the_full_call(und, kind):
+    """choose_refinement once per study, then refinement=F per chunk: bit-identical pixels.
+
+    The probe sees only the observer's envelope, which chunks made with ``take`` keep, so the
+    factor (and every sample time) equals the one ``radiate`` chooses on the whole grid.
+    """
+    from lwrad.engine.frequency import choose_refinement
+
+    g = und.gamma[0]
+    ang = np.linspace(-1, 1, 4) / g
+    obs = AngularGrid(ang, ang[:3]) if kind == "angular" else Screen(20.0, 20 * ang, 20 * ang[:3])
+    en = _harmonic_energies(und, 1)
+    full = radiate(und, obs, en)
+    factor, diag = choose_refinement(und, obs, en, 1e-4)
+    assert factor == full.diagnostics["refinement_factor"]
+    assert diag["converged"] is True and diag["estimated_relative_error"] <= 1e-4
+    assert diag["input_phase_error"] == full.diagnostics["input_phase_error"]
+    parts = [
+        radiate(und, obs.take(np.arange(s.start, s.stop)), en, refinement=factor)
+        for s in plan_chunks(obs.n_pixels, 5)
+    ]
+    assert np.array_equal(Result.concatenate_pixels(parts, obs).field, full.field)

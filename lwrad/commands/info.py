@@ -14,7 +14,7 @@ from pathlib import Path
 
 from lwrad.errors import InputError
 
-__all__ = ["register", "main", "describe_job", "describe_result", "KINDS"]
+__all__ = ["register", "main", "describe_job", "describe_result", "beam_lines", "KINDS"]
 
 KINDS = ("job", "result", "trajectory", "field-map", "on-axis-field-map")
 
@@ -71,6 +71,50 @@ def _range_text(values, unit, scale) -> str:
     return f"{v[0]:.6g} .. {v[-1]:.6g} {unit} ({len(v)} values)"
 
 
+def beam_lines(spec) -> list[str]:
+    """Lines describing a source's electron beam (a :class:`lwrad.jobs.schema.BeamSpec`).
+
+    Emittances in nm·rad, β and dispersion in m, dispersion slope in mrad,
+    rms divergences (sqrt(ε γ_T), γ_T = (1 + α²)/β) in µrad, energy spread
+    in %, bunch length in mm, bunch charge in nC; then how the study sums
+    the electrons.
+    """
+    beam = spec.electron_beam()
+    sx, sy = beam.betatron_divergence
+    lines = [
+        f"beam emittance {beam.emittance_x * 1e9:.4g} × {beam.emittance_y * 1e9:.4g} nm·rad (x × y), "
+        f"beta {beam.beta_x:.4g} × {beam.beta_y:.4g} m, alpha {beam.alpha_x:.4g} × {beam.alpha_y:.4g}",
+        f"     rms divergence {sx * 1e6:.4g} × {sy * 1e6:.4g} µrad, "
+        f"energy spread {beam.energy_spread * 100:.4g} %",
+    ]
+    extra = []
+    if beam.dispersion_x or beam.dispersion_y:
+        extra.append(f"dispersion {beam.dispersion_x:.4g} × {beam.dispersion_y:.4g} m")
+    if beam.dispersion_xp or beam.dispersion_yp:
+        extra.append(
+            f"dispersion slope {beam.dispersion_xp * 1e3:.4g} × {beam.dispersion_yp * 1e3:.4g} mrad"
+        )
+    if beam.bunch_length is not None:
+        extra.append(f"bunch length {beam.bunch_length * 1e3:.4g} mm rms")
+    if beam.longitudinal_profile is not None:
+        extra.append("longitudinal profile given")
+    if beam.bunch_charge is not None:
+        extra.append(f"bunch charge {beam.bunch_charge * 1e9:.4g} nC")
+    if extra:
+        lines.append("     " + ", ".join(extra))
+    how = f"     method {spec.method}"
+    if spec.method != "convolution":
+        tol = "none" if spec.rel_tolerance is None else f"{spec.rel_tolerance:.3g}"
+        how += (
+            f" (Monte Carlo: {spec.particles} particles, seed {spec.seed}, offsets {spec.offsets}, "
+            f"target relative error {tol})"
+        )
+    if spec.z_ref is not None:
+        how += f", Twiss plane z = {spec.z_ref:.6g} m"
+    lines.append(how)
+    return lines
+
+
 def describe_job(path, *, workers=None, calibration=True, out=None) -> None:
     """Print a validated job: sources, studies, chunk plan, memory and time estimates."""
     from lwrad.jobs.planning import check_memory, format_bytes, format_seconds, memory_limit
@@ -93,6 +137,9 @@ def describe_job(path, *, workers=None, calibration=True, out=None) -> None:
             say(f"source       {name}: trajectory file(s) {', '.join(map(str, src.files))}")
         if src.current is not None:
             say(f"             current {src.current:.6g} A")
+        if src.beam is not None:
+            for line in beam_lines(src.beam):
+                say(f"             {line}")
     for p in job.input_files:
         say(f"input file   {p}")
     for s in job.studies:

@@ -17,16 +17,16 @@ per-process baseline counts once for them), with
 * ``fixed``: one process baseline (:data:`PROCESS_BASELINE`) + the sources
   (13 float64 per trajectory sample: t, r, β, β̇, γ) + the result arrays,
   each held up to three times while chunks are collected, read back from
-  the checkpoint and assembled: complex fields 3 × 48 bytes per (photon
-  energy, pixel), plus 8 bytes for flux density and 32 for Stokes
-  parameters; power density 3 × 8 bytes per pixel; time-domain fields
+  the checkpoint and assembled: complex fields and the five float64
+  intensity moments 3 × (48 + 40) bytes per (photon energy, pixel), plus
+  8 bytes for flux density and 32 for Stokes parameters; power density 3 × 8 bytes per pixel; time-domain fields
   3 × 48 bytes per (time, point); for a beam study the single electron's
   photon energies (extended for an energy-spread convolution, see
   :mod:`lwrad.jobs.beams`), and per (photon energy, pixel) 3 × 8 × 11 bytes
   of Monte Carlo sums (moments, standard error, coherent part) plus
   8 × 12 bytes of beam parts and the convolution's copies;
-* ``per_worker``: the chunk's own result twice (solver output and its
-  pickled copy) + solver scratch of :data:`SCRATCH_PER_SAMPLE` bytes per
+* ``per_worker``: the chunk's own result (field and moments) twice (solver
+  output and its pickled copy) + solver scratch of :data:`SCRATCH_PER_SAMPLE` bytes per
   trajectory sample + a copy of the source; plus a process baseline for
   each worker process (``processes`` back end).
 
@@ -61,6 +61,8 @@ __all__ = [
     "MemoryEstimate",
     "plan_job",
     "estimate_memory",
+    "estimate_output_bytes",
+    "OUTPUT_OVERHEAD",
     "memory_limit",
     "available_memory",
     "check_memory",
@@ -75,9 +77,13 @@ __all__ = [
 #: bytes of one Python process with lwrad, NumPy, numba and h5py loaded
 #: (measured on the development machine as about 200 MB resident, rounded up)
 PROCESS_BASELINE = 300_000_000
+#: result-file and checkpoint bytes beside the arrays (provenance, job text, HDF5 metadata
+#: of a few hundred chunk files); a generous round figure, common practice, no source
+OUTPUT_OVERHEAD = 16_000_000
 #: solver scratch per trajectory sample and worker, bytes (16 float64)
 SCRATCH_PER_SAMPLE = 128
 _FIELD_BYTES = 48  # three complex128 components
+_MOMENT_BYTES = 40  # five float64 intensity moments (Result.moments), kept beside the field
 _HELD_COPIES = 3
 
 
@@ -166,8 +172,8 @@ def _study_bytes(study, n_time=None, source=None) -> tuple[int, int]:
         derived = (8 if "flux_density" in study.quantities else 0) + (
             32 if "stokes" in study.quantities else 0
         )
-        assembled += n_e * n_pix * (_HELD_COPIES * _FIELD_BYTES + derived)
-        per_pixel = max(per_pixel, 2 * n_e * _FIELD_BYTES)
+        assembled += n_e * n_pix * (_HELD_COPIES * (_FIELD_BYTES + _MOMENT_BYTES) + derived)
+        per_pixel = max(per_pixel, 2 * n_e * (_FIELD_BYTES + _MOMENT_BYTES))
     if "beam" in groups:
         n_e = len(study.photon_energy)
         assembled += n_e * n_pix * _HELD_COPIES * 8 * 11
@@ -180,6 +186,40 @@ def _study_bytes(study, n_time=None, source=None) -> tuple[int, int]:
         assembled += n_t * n_pix * _HELD_COPIES * 48
         per_pixel = max(per_pixel, 2 * n_t * 48)
     return assembled, per_pixel
+
+
+def estimate_output_bytes(plan: JobPlan) -> int:
+    """Disk space a run needs at its peak, bytes: the checkpoint and the final file together.
+
+    Both hold every study's arrays (the checkpoint is removed only after the
+    final file is written), so the estimate is twice the stored arrays plus
+    :data:`OUTPUT_OVERHEAD` for provenance, job text and HDF5 metadata. Stored
+    per (photon energy, pixel): field 48 bytes + moments 40 (+ 40 for a
+    bunch's standard error), flux density 8, Stokes 32; beam studies a further
+    8 × 12 (parts) and 8 × 11 (Monte Carlo sums); power density 8 bytes per
+    pixel; time-domain fields 48 bytes per (time, point) (uncompressed sizes:
+    an upper estimate, HDF5 compresses large datasets).
+    """
+    total = 0
+    for study in plan.job.studies:
+        n_pix = study.observer.n_pixels
+        groups = groups_of(study.quantities, study.beam_method)
+        if "spectra" in groups:
+            n_e = len(study.photon_energy)
+            source = plan.job.sources.get(study.source)
+            if source is not None and study.beam_method is not None:
+                from lwrad.jobs.beams import single_electron_energies
+
+                n_e = len(single_electron_energies(study, source))
+                total += n_e * n_pix * 8 * 12
+            total += n_e * n_pix * (_FIELD_BYTES + 2 * _MOMENT_BYTES + 8 + 32)
+        if "beam" in groups:
+            total += len(study.photon_energy) * n_pix * 8 * 11
+        if "power" in groups:
+            total += n_pix * 8
+        if "fields" in groups:
+            total += len(study.time) * n_pix * 48
+    return int(2 * total + OUTPUT_OVERHEAD)
 
 
 def estimate_memory(

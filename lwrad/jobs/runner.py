@@ -3,9 +3,10 @@
 Order of a run (nothing is computed before every check has passed):
 
 1. the job file is validated (:mod:`lwrad.jobs.schema`);
-2. the output is checked: its folder exists and is writable, the file does
-   not exist (unless ``force``), no unfinished checkpoint is in the way
-   (unless ``resume`` or ``force``);
+2. the output is checked: its folder exists and is writable, has room for
+   the checkpoint and the result (:func:`lwrad.jobs.planning.estimate_output_bytes`),
+   the file does not exist (unless ``force``), no unfinished checkpoint is in
+   the way (unless ``resume`` or ``force``);
 3. sources are built (tracked or read), observers made, the chunk plan cut;
 4. the memory estimate is compared with the limit; too large → refused;
 5. a calibration of one pixel per study gives the time estimate;
@@ -58,6 +59,7 @@ from lwrad.jobs.build import build_aperture, build_observer, build_source
 from lwrad.jobs.planning import (
     JobPlan,
     check_memory,
+    estimate_output_bytes,
     format_bytes,
     format_seconds,
     memory_limit,
@@ -68,7 +70,15 @@ from lwrad.jobs.progress import Progress
 from lwrad.jobs.schema import Job, load_job
 from lwrad.jobs.tasks import Chunk, Work, compute
 
-__all__ = ["Prepared", "prepare", "make_work", "run_job", "resolve_parallel", "calibrate"]
+__all__ = [
+    "Prepared",
+    "prepare",
+    "choose_refinements",
+    "make_work",
+    "run_job",
+    "resolve_parallel",
+    "calibrate",
+]
 
 
 @dataclass
@@ -89,6 +99,10 @@ class Prepared:
         Source name → trajectory samples (summed over a bunch).
     beams : dict
         Source name → ElectronBeam, for sources with a ``beam`` table.
+    refinements : dict
+        Study name → (refinement factor, diagnostics) of the radiation
+        integral's sampling, chosen once per study (:func:`choose_refinements`);
+        empty until then.
     """
 
     job: Job
@@ -98,6 +112,7 @@ class Prepared:
     times: dict
     n_samples: dict
     beams: dict = field(default_factory=dict)
+    refinements: dict = field(default_factory=dict)
 
     def input_hashes(self) -> dict:
         """Input file → SHA-256, for provenance and the checkpoint fingerprint."""
@@ -152,6 +167,31 @@ def prepare(job: Job, *, chunk_pixels: int | None = None) -> Prepared:
     )
 
 
+def choose_refinements(prep: Prepared) -> dict:
+    """Choose the sampling refinement of every frequency-domain study once (fills ``prep.refinements``).
+
+    The convergence probe then runs once per study instead of once per chunk,
+    and all chunks of a study sample the path with the same factor, so a
+    pixel's value cannot depend on the chunk it falls in. Studies computed
+    with ``method = "fft"`` do not use it.
+    """
+    from lwrad.engine.frequency import choose_refinement
+
+    for study in prep.job.studies:
+        if study.name in prep.refinements or not study.frequency_domain:
+            continue
+        if study.method == "fft":
+            continue
+        energies = beam_studies.single_electron_energies(study, prep.job.sources[study.source])
+        prep.refinements[study.name] = choose_refinement(
+            prep.sources[study.source],
+            prep.observers[study.name],
+            energies,
+            study.tolerance,
+        )
+    return prep.refinements
+
+
 def make_work(prep: Prepared, chunk: Chunk) -> Work:
     """The picklable work item of one chunk."""
     study = prep.job.study(chunk.study)
@@ -177,6 +217,7 @@ def make_work(prep: Prepared, chunk: Chunk) -> Work:
         tolerance=study.tolerance,
         # a beam study's spectra chunks are the single reference electron's
         coherent=study.coherent and chunk.group == "spectra" and src_spec.beam is None,
+        refinement=prep.refinements.get(study.name, (None, None))[0],
         beam=beam,
         beam_options=options,
     )
@@ -249,6 +290,11 @@ def _assemble(prep: Prepared, checkpoint):
         case = Case.from_observer(study.name, observer, attrs=attrs)
         ny, nx = observer.shape
         spectra = [checkpoint.load_chunk(c.key) for c in prep.plan.chunks_of(study.name, "spectra")]
+        sampling = prep.refinements.get(study.name, (None, None))[1]
+        if sampling:
+            # the convergence figures of the study-wide choice of sampling (chunks ran with it fixed)
+            for r in spectra:
+                r.diagnostics.update(sampling)
         if spectra and study.beam_method is not None:
             # the beam's sum: the convolution needs the whole assembled map (lwrad.jobs.beams)
             single = Result.concatenate_pixels(spectra, observer)
@@ -282,8 +328,21 @@ def _assemble(prep: Prepared, checkpoint):
             e_field = np.concatenate([f["E"][0] for f in fields], axis=1)
             b_field = np.concatenate([f["B"][0] for f in fields], axis=1)
             case.add_fields(prep.times[study.name], study.observer.points, e_field, b_field)
+            case.attrs["retarded_time"] = _retarded_time_figures(fields)
         cases.append(case)
     return cases
+
+
+def _retarded_time_figures(payloads) -> dict:
+    """The retarded-time solver's counts over a study's ``fields`` chunks (sums; maximum iterations)."""
+    from lwrad.jobs.tasks import RETARDED_TIME_FIGURES
+
+    out = {}
+    for name in RETARDED_TIME_FIGURES:
+        values = [int(p[name][0][0]) for p in payloads if name in p]
+        if values:
+            out[name] = max(values) if name == "max_iterations" else sum(values)
+    return out
 
 
 def _say(quiet, stream, text):
@@ -354,8 +413,15 @@ def run_job(
     if not isinstance(job, Job):
         job = load_job(job)
     output = Path(output)
-    check_writable(output, overwrite=force, hint="use --force to replace it")
     parts = output.with_name(output.name + ".parts")
+    # the checkpoint and the final file share the target's file system: refuse a run that
+    # could not store them before any work (what a resumed checkpoint holds already counts)
+    needed = estimate_output_bytes(plan_job(job, chunk_pixels=chunk_pixels))
+    if resume and parts.is_dir():
+        needed -= sum(p.stat().st_size for p in parts.iterdir() if p.is_file())
+    check_writable(
+        output, overwrite=force, hint="use --force to replace it", needed_bytes=max(needed, 0)
+    )
     if parts.exists() and not (resume or force):
         raise InputError(
             f"a checkpoint of an unfinished run exists in {str(parts)!r}; "
@@ -390,6 +456,8 @@ def run_job(
         f"lwrad run: memory estimate {format_bytes(estimate.total)} "
         f"(limit {format_bytes(limit) if limit else 'unknown'}, {limit_from})",
     )
+    # the sampling of each study, chosen once (deterministic: the same on a resumed run)
+    choose_refinements(prep)
     # calibrate before the checkpoint exists: a chunk that cannot be computed stops the run
     # here, with nothing left behind
     per_pixel = calibrate(prep, plan.chunks) if calibration and not quiet else None
@@ -450,6 +518,9 @@ def run_job(
             backend=None if chosen == "dask" else chosen,
             scheduler=scheduler,
             on_result=on_result,
+            # every payload is in the checkpoint once on_result returns: keeping them too
+            # would hold the whole job's results in memory during the run
+            keep_results=False,
         )
     finally:
         progress.close()

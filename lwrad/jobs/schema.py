@@ -38,7 +38,10 @@ Layout
 Keys, units and defaults
 ------------------------
 A *range* is a single value, a list of values, or a table
-``{start = ..., stop = ..., count = N, spacing = "linear" | "log"}``.
+``{start = ..., stop = ..., count = N, spacing = "linear" | "log"}``, with at
+most :data:`MAX_RANGE_COUNT` (10 000 000) values per axis. Energies must stay
+finite once converted to eV; ``n_periods`` is at most :data:`MAX_PERIODS`
+(100 000) and ``beam.particles`` at most :data:`MAX_PARTICLES` (10 000 000).
 
 =========================================  ==========  =============  ==========================================
 key                                        default     default        meaning
@@ -202,6 +205,9 @@ __all__ = [
     "BEAM_METHODS",
     "BEAM_OFFSETS",
     "DEFAULT_CHUNK_PIXELS",
+    "MAX_RANGE_COUNT",
+    "MAX_PERIODS",
+    "MAX_PARTICLES",
 ]
 
 #: every quantity a study may ask for
@@ -217,6 +223,13 @@ MAGNET_TYPES = (
     "on_axis_field_map",
 )
 DEFAULT_CHUNK_PIXELS = 64
+#: most values a range (``count``) or list may give one axis: 1e7 float64 is 80 MB, far
+#: beyond any sensible grid, and a typo beyond it would otherwise allocate while parsing
+MAX_RANGE_COUNT = 10_000_000
+#: most undulator periods accepted (a 100 000-period device would be kilometres long)
+MAX_PERIODS = 100_000
+#: most Monte Carlo macro-electrons of a beam study
+MAX_PARTICLES = 10_000_000
 #: how a study of a beam source sums the electrons (``auto`` is resolved per study)
 BEAM_METHODS = ("auto", "convolution", "monte_carlo")
 #: how Monte Carlo particles get their paths from the reference (see :mod:`lwrad.beam`)
@@ -565,7 +578,7 @@ class _Table:
             self.problems.add(self.key(name), _unit_problem(value, exc, unit))
             return default
 
-    def integer(self, name, *, required=False, default=None, minimum=None):
+    def integer(self, name, *, required=False, default=None, minimum=None, maximum=None):
         value = self._get(name, required, "an integer")
         if value is _MISSING:
             return default
@@ -574,6 +587,9 @@ class _Table:
             return default
         if minimum is not None and value < minimum:
             self._bad(name, value, f"an integer >= {minimum}")
+            return default
+        if maximum is not None and value > maximum:
+            self._bad(name, value, f"an integer <= {maximum:,}".replace(",", " "))
             return default
         return int(value)
 
@@ -645,6 +661,25 @@ class _Table:
             self.problems.add(self.key(name), f"unknown key{hint} (keys allowed here: {allowed})")
 
 
+def _in_ev(value_j, table: _Table, name):
+    """Joules → eV, refusing what overflows.
+
+    :func:`lwrad.units.parse_quantity` checks that the value is finite in SI
+    (J), but the division by e that gives eV can still overflow (``"1e300 GeV"``
+    is 1.6e290 J but 1e309 eV = inf), so the finite check is repeated here.
+    """
+    with np.errstate(over="ignore"):
+        ev = np.asarray(value_j, dtype=np.float64) / parse_quantity(
+            "1 eV", "energy", default_unit="eV"
+        )
+    if not np.all(np.isfinite(ev)):
+        table.problems.add(
+            table.key(name), f"got {table.data.get(name)!r}; expected a finite energy"
+        )
+        return None
+    return float(ev) if np.ndim(value_j) == 0 else ev
+
+
 def _range(table: _Table, name, dimension, unit, *, required=True, increasing=True, positive=False):
     """A single value, a list, or {start, stop, count, spacing} → float64 array (SI)."""
     value = table._get(name, required, f"a {dimension}, a list of them, or {{start, stop, count}}")
@@ -670,7 +705,8 @@ def _range(table: _Table, name, dimension, unit, *, required=True, increasing=Tr
         sub = _Table(value, key, problems, f"{table.pattern}.{name}")
         start = sub.quantity("start", dimension, unit, required=True, positive=positive)
         stop = sub.quantity("stop", dimension, unit, required=True, positive=positive)
-        count = sub.integer("count", required=True, minimum=1)
+        # the cap keeps a typo from allocating gigabytes (or failing inside numpy) while parsing
+        count = sub.integer("count", required=True, minimum=1, maximum=MAX_RANGE_COUNT)
         spacing = sub.text("spacing", default="linear", choices=("linear", "log"))
         sub.finish()
         if start is None or stop is None or count is None:
@@ -692,6 +728,9 @@ def _range(table: _Table, name, dimension, unit, *, required=True, increasing=Tr
     items = value if isinstance(value, list) else [value]
     if not items:
         problems.add(key, "empty list; expected at least one value")
+        return None
+    if len(items) > MAX_RANGE_COUNT:
+        problems.add(key, f"{len(items)} values; at most {MAX_RANGE_COUNT} are allowed per axis")
         return None
     out = [one(v, f"{key}[{i}]" if isinstance(value, list) else key) for i, v in enumerate(items)]
     if any(v is None for v in out):
@@ -732,7 +771,7 @@ def _magnet(t: _Table, base: Path, files: list) -> dict | None:
     out: dict[str, Any] = {"type": kind, "center": t.quantity("center", "length", "m", default=0.0)}
     if kind in ("planar_undulator", "helical_undulator", "elliptical_undulator"):
         out["period"] = t.quantity("period", "length", "mm", required=True, positive=True)
-        out["n_periods"] = t.integer("n_periods", required=True, minimum=1)
+        out["n_periods"] = t.integer("n_periods", required=True, minimum=1, maximum=MAX_PERIODS)
         out["terminations"] = t.boolean("terminations", default=True)
         out["off_axis"] = t.boolean("off_axis", default=False)
         out["pole_error_rms"] = t.quantity(
@@ -794,7 +833,7 @@ def _source(name: str, t: _Table, base: Path, files: list) -> SourceSpec | None:
         spec["particle"] = particle
         spec["energy_ev"] = t.quantity("energy", "energy", "GeV", required=True, positive=True)
         if spec["energy_ev"] is not None:
-            spec["energy_ev"] /= parse_quantity("1 eV", "energy", default_unit="eV")
+            spec["energy_ev"] = _in_ev(spec["energy_ev"], t, "energy")
         magnets = t.raw(
             "magnet", required=True, what="a list of magnet tables ([[sources.<name>.magnet]])"
         )
@@ -900,12 +939,12 @@ def _beam(t: _Table, spec: dict) -> tuple[BeamSpec | None, float | None]:
 
     problems = t.problems
     n_before = len(problems.items)
-    eV = parse_quantity("1 eV", "energy", default_unit="eV")
     params: dict[str, Any] = {}
     energy = t.quantity("energy", "energy", "GeV", default=None, positive=True)
     source_energy = spec.get("energy_ev")
     if energy is not None:
-        energy /= eV
+        energy = _in_ev(energy, t, "energy")
+    if energy is not None:
         if source_energy is not None and abs(energy - source_energy) > 1e-9 * source_energy:
             problems.add(
                 t.key("energy"),
@@ -941,7 +980,7 @@ def _beam(t: _Table, spec: dict) -> tuple[BeamSpec | None, float | None]:
         if value is not None:
             params[key] = value
     method = t.text("method", default="auto", choices=BEAM_METHODS)
-    particles = t.integer("particles", default=256, minimum=2)
+    particles = t.integer("particles", default=256, minimum=2, maximum=MAX_PARTICLES)
     rel_tolerance = t.number("rel_tolerance", default=0.05, positive=True)
     seed = t.integer("seed", default=1, minimum=0)
     offsets = t.text("offsets", default="longitudinal-field", choices=BEAM_OFFSETS)
@@ -1102,12 +1141,12 @@ def _study(i: int, t: _Table, sources: dict, run: dict) -> StudySpec | None:
     if needs_energy:
         photon_energy = _range(t, "photon_energy", "energy", "eV", positive=True, increasing=False)
         if photon_energy is not None:
-            photon_energy = photon_energy / parse_quantity("1 eV", "energy", default_unit="eV")
+            photon_energy = _in_ev(photon_energy, t, "photon_energy")
         map_energy = _range(
             t, "map_photon_energy", "energy", "eV", required=False, positive=True, increasing=False
         )
         if map_energy is not None:
-            map_energy = map_energy / parse_quantity("1 eV", "energy", default_unit="eV")
+            map_energy = _in_ev(map_energy, t, "map_photon_energy")
     elif t.has("photon_energy"):
         t.raw("photon_energy")
         problems.add(

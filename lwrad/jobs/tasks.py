@@ -9,7 +9,7 @@ group       solver call                                           payload (check
 ==========  ====================================================  ==========================
 spectra     ``radiate(source, observer.take(chunk), E, n_jobs=1)``  the ``Result``
 power       ``power_density(source, observer.take(chunk), I)``      ``{"power_density": ...}``
-fields      ``fields(traj, points[chunk], t_obs, n_jobs=1)``        ``{"E": ..., "B": ...}``
+fields      ``fields(traj, points[chunk], t_obs, n_jobs=1)``        ``{"E": ..., "B": ...}`` + counts
 beam        ``monte_carlo(beam, observer.take(chunk), E, ...)``     ``{"incoherent_moments": ...}``
 ==========  ====================================================  ==========================
 
@@ -27,9 +27,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Chunk", "Work", "compute", "GROUPS", "groups_of"]
+__all__ = ["Chunk", "Work", "compute", "GROUPS", "groups_of", "RETARDED_TIME_FIGURES"]
 
 GROUPS = ("spectra", "power", "fields", "beam")
+#: counts of :func:`lwrad.timedomain.fields` kept per ``fields`` chunk (``max_iterations``
+#: is merged by maximum, the others by sum)
+RETARDED_TIME_FIGURES = ("n_not_converged", "max_iterations", "n_inside", "n_before", "n_after")
 
 
 def groups_of(quantities, beam_method: str | None = None) -> list[str]:
@@ -89,6 +92,11 @@ class Work:
         Observer times, s (fields).
     method, tolerance, coherent
         Solver options (spectra).
+    refinement : float or None
+        Sampling refinement factor chosen once for the whole study
+        (:func:`lwrad.engine.frequency.choose_refinement`), so no chunk repeats
+        the convergence probe and every chunk samples the path alike; None:
+        each chunk chooses its own.
     beam : ElectronBeam or None
         The beam (``beam`` group).
     beam_options : dict or None
@@ -104,6 +112,7 @@ class Work:
     method: str = "auto"
     tolerance: float = 1e-4
     coherent: bool = False
+    refinement: float | None = None
     beam: object = None
     beam_options: dict | None = None
 
@@ -122,6 +131,7 @@ def compute(work: Work):
             n_jobs=1,
             tolerance=work.tolerance,
             coherent=work.coherent,
+            refinement=work.refinement,
         )
     if group == "power":
         from lwrad.radiation import power_density
@@ -137,11 +147,19 @@ def compute(work: Work):
     if group == "fields":
         from lwrad.timedomain import fields
 
-        e_field, b_field = fields(work.source, work.observer.points(), work.time, n_jobs=1)
-        return {
+        e_field, b_field, info = fields(
+            work.source, work.observer.points(), work.time, n_jobs=1, return_info=True
+        )
+        out = {
             "E": (np.asarray(e_field, dtype=np.float64), "V/m"),
             "B": (np.asarray(b_field, dtype=np.float64), "T"),
         }
+        # the retarded-time solver's figures travel with the chunk, so that a non-converged
+        # pair is reported in the result file and never silent (merged by the runner)
+        for name in RETARDED_TIME_FIGURES:
+            if name in info:
+                out[name] = (np.array([int(info[name])], dtype=np.int64), "1")
+        return out
     if group == "beam":
         from lwrad.jobs.beams import monte_carlo_chunk
 
