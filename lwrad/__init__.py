@@ -57,7 +57,17 @@ _EXPORTS: dict[str, str] = {
     "run_job": "lwrad.jobs",
 }
 
-_SUBMODULES = {"estimate", "special", "constants", "units", "testing", "plots", "io", "magnets", "engine"}
+_SUBMODULES = {
+    "estimate",
+    "special",
+    "constants",
+    "units",
+    "testing",
+    "plots",
+    "io",
+    "magnets",
+    "engine",
+}
 
 __all__ = ["__version__", "InputError", "ConvergenceWarning", "ConvergenceError", *_EXPORTS]
 

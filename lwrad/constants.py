@@ -41,6 +41,7 @@ __all__ = [
     "one_minus_beta_from_gamma",
 ]
 
+
 #: CODATA edition of the installed SciPy's constants (recorded in provenance).
 def _codata_edition() -> str:
     try:  # private attribute; fall back to a generic label if SciPy renames it
@@ -116,7 +117,9 @@ def particle_properties(particle: str | tuple[float, float]) -> tuple[float, flo
     else:
         raise InputError(f"particle must be a name or (charge, mass), got {particle!r}")
     if not (np.isfinite(charge) and charge != 0.0 and np.isfinite(mass) and mass > 0.0):
-        raise InputError(f"particle needs a non-zero finite charge and a positive mass, got {particle!r}")
+        raise InputError(
+            f"particle needs a non-zero finite charge and a positive mass, got {particle!r}"
+        )
     return charge, mass
 
 

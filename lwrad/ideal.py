@@ -111,7 +111,9 @@ def planar_undulator(
     r = np.stack([x, np.zeros(n), z], axis=1)
     b = np.stack([bx, np.zeros(n), bz], axis=1)
     bd = np.stack([bdx, np.zeros(n), bdz], axis=1)
-    return Trajectory(t, r, b, bd, charge, mass, gamma=np.full(n, gamma), source="ideal planar undulator")
+    return Trajectory(
+        t, r, b, bd, charge, mass, gamma=np.full(n, gamma), source="ideal planar undulator"
+    )
 
 
 def helical_undulator(
@@ -146,11 +148,15 @@ def helical_undulator(
     t = z / (c * bz)
     ph = ku * z
     s = float(handedness)
-    r = np.stack([amp / (ku * bz) * np.sin(ph), -s * amp / (ku * bz) * (np.cos(ph) - 1.0), z], axis=1)
+    r = np.stack(
+        [amp / (ku * bz) * np.sin(ph), -s * amp / (ku * bz) * (np.cos(ph) - 1.0), z], axis=1
+    )
     b = np.stack([amp * np.cos(ph), s * amp * np.sin(ph), np.full(n, bz)], axis=1)
     w = ku * c * bz
     bd = np.stack([-amp * w * np.sin(ph), s * amp * w * np.cos(ph), np.zeros(n)], axis=1)
-    return Trajectory(t, r, b, bd, charge, mass, gamma=np.full(n, gamma), source="ideal helical undulator")
+    return Trajectory(
+        t, r, b, bd, charge, mass, gamma=np.full(n, gamma), source="ideal helical undulator"
+    )
 
 
 def circular_arc(
@@ -187,7 +193,9 @@ def circular_arc(
     r = np.stack([s * radius * (1.0 - np.cos(ph)), np.zeros_like(t), radius * np.sin(ph)], axis=1)
     b = beta * np.stack([s * np.sin(ph), np.zeros_like(t), np.cos(ph)], axis=1)
     bd = beta * omega * np.stack([s * np.cos(ph), np.zeros_like(t), -np.sin(ph)], axis=1)
-    return Trajectory(t, r, b, bd, charge, mass, gamma=np.full(t.size, gamma), source="ideal circular arc")
+    return Trajectory(
+        t, r, b, bd, charge, mass, gamma=np.full(t.size, gamma), source="ideal circular arc"
+    )
 
 
 def uniform_line(
@@ -212,5 +220,12 @@ def uniform_line(
     r = np.asarray(start, dtype=float)[None, :] + (beta * c * t)[:, None] * d[None, :]
     b = np.broadcast_to(beta * d, (t.size, 3))
     return Trajectory(
-        t, r, b, np.zeros((t.size, 3)), charge, mass, gamma=np.full(t.size, gamma), source="ideal uniform line"
+        t,
+        r,
+        b,
+        np.zeros((t.size, 3)),
+        charge,
+        mass,
+        gamma=np.full(t.size, gamma),
+        source="ideal uniform line",
     )

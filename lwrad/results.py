@@ -69,6 +69,7 @@ from __future__ import annotations
 import contextlib
 import datetime as _dt
 import hashlib
+import io
 import json
 import os
 import platform
@@ -751,6 +752,8 @@ def _open_h5(path, mode: str) -> h5py.File:
     (common on clusters) they make every open fail. Writes skip them; reads
     try them first.
     """
+    if mode == "w":
+        return _write_h5(path)
     if mode != "r":
         return h5py.File(path, mode, locking=False)
     try:
@@ -759,6 +762,22 @@ def _open_h5(path, mode: str) -> h5py.File:
         if "lock" not in str(exc).lower():
             raise
         return h5py.File(path, "r", locking=False)
+
+
+@contextlib.contextmanager
+def _write_h5(path):
+    """Build a new HDF5 file in memory, then write its bytes to ``path`` with plain I/O.
+
+    HDF5 that meets a full or vanished file system while flushing keeps the file
+    open inside the library and can crash the interpreter when it shuts down;
+    writing the finished image with Python's own I/O turns the same failure into
+    an ordinary ``OSError`` (which :func:`lwrad.atomic.atomic_output` reports).
+    """
+    buffer = io.BytesIO()
+    with h5py.File(buffer, "w") as f:
+        yield f
+    with open(path, "wb") as fh:
+        fh.write(buffer.getbuffer())
 
 
 _TEXT = h5py.string_dtype("utf-8")

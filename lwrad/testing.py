@@ -46,7 +46,11 @@ def assert_allclose_rel(actual, reference, rtol: float, *, what: str = "value", 
     if actual.shape != reference.shape:
         raise AssertionError(f"{what}: shape {actual.shape} != reference {reference.shape}")
     denom = float(np.max(np.abs(reference))) if scale is None else float(scale)
-    err = float(np.max(np.abs(actual - reference))) / denom if denom else float(np.max(np.abs(actual)))
+    err = (
+        float(np.max(np.abs(actual - reference))) / denom
+        if denom
+        else float(np.max(np.abs(actual)))
+    )
     if not err <= rtol:
         raise AssertionError(f"{what}: relative error {err:.3e} exceeds tolerance {rtol:.1e}")
     return err

@@ -44,7 +44,9 @@ def _as_float_array(name, value, shape_tail, source):
         raise InputError(f"{name} must be numeric: {exc}", source=source, location=name) from None
     if arr.ndim != 1 + len(shape_tail) or arr.shape[1:] != shape_tail:
         want = "(N,)" if not shape_tail else f"(N, {', '.join(map(str, shape_tail))})"
-        raise InputError(f"{name} must have shape {want}, got {arr.shape}", source=source, location=name)
+        raise InputError(
+            f"{name} must have shape {want}, got {arr.shape}", source=source, location=name
+        )
     bad = ~np.isfinite(arr)
     if bad.any():
         index = int(np.argwhere(bad)[0][0])
@@ -146,7 +148,9 @@ class Trajectory:
         t = _as_float_array("t", t, (), src)
         n = t.shape[0]
         if n < 2:
-            raise InputError(f"a trajectory needs at least 2 samples, got {n}", source=src, location="t")
+            raise InputError(
+                f"a trajectory needs at least 2 samples, got {n}", source=src, location="t"
+            )
         dt = np.diff(t)
         if not np.all(dt > 0):
             index = int(np.argmin(dt > 0)) + 1
@@ -177,14 +181,17 @@ class Trajectory:
             gamma = _as_float_array("gamma", gamma, (), src)
             if gamma.shape[0] != n:
                 raise InputError(
-                    f"gamma has {gamma.shape[0]} samples but t has {n}", source=src, location="gamma"
+                    f"gamma has {gamma.shape[0]} samples but t has {n}",
+                    source=src,
+                    location="gamma",
                 )
             if np.any(gamma < 1.0):
                 raise InputError("gamma must be >= 1", source=src, location="gamma")
             implied = gamma * gamma * speed2  # = γ²β², equals γ² − 1 when consistent
-            mismatch = np.abs(implied - (gamma * gamma - 1.0)) > _GAMMA_CONSISTENCY_RTOL * np.maximum(
-                gamma * gamma - 1.0, 1e-300
-            ) + 1e-12
+            mismatch = (
+                np.abs(implied - (gamma * gamma - 1.0))
+                > _GAMMA_CONSISTENCY_RTOL * np.maximum(gamma * gamma - 1.0, 1e-300) + 1e-12
+            )
             if np.any(mismatch):
                 index = int(np.argmax(mismatch))
                 raise InputError(
@@ -327,8 +334,14 @@ class Trajectory:
         scale = np.divide(target, speed, out=np.ones_like(speed), where=speed > 0)
         beta_new = beta_new * scale[:, None]
         return Trajectory(
-            t_new, r_new, beta_new, beta_dot_new, self._charge, self._mass,
-            gamma=gamma_new, source=self._source,
+            t_new,
+            r_new,
+            beta_new,
+            beta_dot_new,
+            self._charge,
+            self._mass,
+            gamma=gamma_new,
+            source=self._source,
         )
 
     def slice(self, t_start: float | None = None, t_end: float | None = None) -> Trajectory:
@@ -353,8 +366,14 @@ class Trajectory:
     def replace(self, **changes) -> Trajectory:
         """A copy with some constructor arguments replaced (validated again)."""
         args = dict(
-            t=self._t, r=self._r, beta=self._beta, beta_dot=self._beta_dot, charge=self._charge,
-            mass=self._mass, gamma=self._gamma, source=self._source,
+            t=self._t,
+            r=self._r,
+            beta=self._beta,
+            beta_dot=self._beta_dot,
+            charge=self._charge,
+            mass=self._mass,
+            gamma=self._gamma,
+            source=self._source,
         )
         args.update(changes)
         return Trajectory(**args)
@@ -399,7 +418,9 @@ class Bunch(Sequence):
 
     __slots__ = ("_trajectories", "_weights", "_source")
 
-    def __init__(self, trajectories: Iterable[Trajectory], weights=None, *, source: str | None = None):
+    def __init__(
+        self, trajectories: Iterable[Trajectory], weights=None, *, source: str | None = None
+    ):
         trajs = tuple(trajectories)
         if not trajs:
             raise InputError("a bunch needs at least one trajectory", source=source)
@@ -414,7 +435,8 @@ class Bunch(Sequence):
             w = _as_float_array("weights", weights, (), source)
             if w.shape[0] != len(trajs):
                 raise InputError(
-                    f"{w.shape[0]} weights for {len(trajs)} trajectories", source=source,
+                    f"{w.shape[0]} weights for {len(trajs)} trajectories",
+                    source=source,
                     location="weights",
                 )
             if np.any(w < 0):
@@ -446,7 +468,9 @@ class Bunch(Sequence):
     @property
     def total_charge(self) -> float:
         """Total charge Σ w_j q_j, C."""
-        return float(sum(w * tr.charge for w, tr in zip(self._weights, self._trajectories, strict=True)))
+        return float(
+            sum(w * tr.charge for w, tr in zip(self._weights, self._trajectories, strict=True))
+        )
 
     def __repr__(self) -> str:
         return f"Bunch({len(self)} trajectories, total weight {self.total_weight:.6g})"

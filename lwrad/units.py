@@ -15,7 +15,14 @@ import re
 from lwrad.constants import c, e
 from lwrad.errors import InputError
 
-__all__ = ["UNITS", "DIMENSIONS", "unit_factor", "parse_quantity", "split_quantity", "format_quantity"]
+__all__ = [
+    "UNITS",
+    "DIMENSIONS",
+    "unit_factor",
+    "parse_quantity",
+    "split_quantity",
+    "format_quantity",
+]
 
 _EV = e
 
@@ -23,36 +30,73 @@ _EV = e
 #: particle's mass times c) is resolved with the particle mass.
 UNITS: dict[str, tuple[str, float]] = {
     # length
-    "m": ("length", 1.0), "cm": ("length", 1e-2), "mm": ("length", 1e-3),
-    "um": ("length", 1e-6), "µm": ("length", 1e-6), "nm": ("length", 1e-9), "km": ("length", 1e3),
+    "m": ("length", 1.0),
+    "cm": ("length", 1e-2),
+    "mm": ("length", 1e-3),
+    "um": ("length", 1e-6),
+    "µm": ("length", 1e-6),
+    "nm": ("length", 1e-9),
+    "km": ("length", 1e3),
     # time
-    "s": ("time", 1.0), "ms": ("time", 1e-3), "us": ("time", 1e-6), "µs": ("time", 1e-6),
-    "ns": ("time", 1e-9), "ps": ("time", 1e-12), "fs": ("time", 1e-15), "as": ("time", 1e-18),
+    "s": ("time", 1.0),
+    "ms": ("time", 1e-3),
+    "us": ("time", 1e-6),
+    "µs": ("time", 1e-6),
+    "ns": ("time", 1e-9),
+    "ps": ("time", 1e-12),
+    "fs": ("time", 1e-15),
+    "as": ("time", 1e-18),
     # energy (beam or photon)
-    "J": ("energy", 1.0), "eV": ("energy", _EV), "keV": ("energy", 1e3 * _EV),
-    "MeV": ("energy", 1e6 * _EV), "GeV": ("energy", 1e9 * _EV), "TeV": ("energy", 1e12 * _EV),
+    "J": ("energy", 1.0),
+    "eV": ("energy", _EV),
+    "keV": ("energy", 1e3 * _EV),
+    "MeV": ("energy", 1e6 * _EV),
+    "GeV": ("energy", 1e9 * _EV),
+    "TeV": ("energy", 1e12 * _EV),
     # angle
-    "rad": ("angle", 1.0), "mrad": ("angle", 1e-3), "urad": ("angle", 1e-6),
-    "µrad": ("angle", 1e-6), "deg": ("angle", math.pi / 180.0),
+    "rad": ("angle", 1.0),
+    "mrad": ("angle", 1e-3),
+    "urad": ("angle", 1e-6),
+    "µrad": ("angle", 1e-6),
+    "deg": ("angle", math.pi / 180.0),
     # magnetic flux density
-    "T": ("field", 1.0), "mT": ("field", 1e-3), "G": ("field", 1e-4), "kG": ("field", 1e-1),
+    "T": ("field", 1.0),
+    "mT": ("field", 1e-3),
+    "G": ("field", 1e-4),
+    "kG": ("field", 1e-1),
     # current
-    "A": ("current", 1.0), "mA": ("current", 1e-3), "uA": ("current", 1e-6), "µA": ("current", 1e-6),
+    "A": ("current", 1.0),
+    "mA": ("current", 1e-3),
+    "uA": ("current", 1e-6),
+    "µA": ("current", 1e-6),
     # charge
-    "C": ("charge", 1.0), "nC": ("charge", 1e-9), "pC": ("charge", 1e-12), "fC": ("charge", 1e-15),
+    "C": ("charge", 1.0),
+    "nC": ("charge", 1e-9),
+    "pC": ("charge", 1e-12),
+    "fC": ("charge", 1e-15),
     # momentum
-    "kg*m/s": ("momentum", 1.0), "eV/c": ("momentum", _EV / c), "keV/c": ("momentum", 1e3 * _EV / c),
-    "MeV/c": ("momentum", 1e6 * _EV / c), "GeV/c": ("momentum", 1e9 * _EV / c),
+    "kg*m/s": ("momentum", 1.0),
+    "eV/c": ("momentum", _EV / c),
+    "keV/c": ("momentum", 1e3 * _EV / c),
+    "MeV/c": ("momentum", 1e6 * _EV / c),
+    "GeV/c": ("momentum", 1e9 * _EV / c),
     "mc": ("momentum", float("nan")),
     # velocity
-    "c": ("velocity", c), "m/s": ("velocity", 1.0),
+    "c": ("velocity", c),
+    "m/s": ("velocity", 1.0),
     # emittance (geometric)
-    "m*rad": ("emittance", 1.0), "mm*mrad": ("emittance", 1e-6), "nm*rad": ("emittance", 1e-9),
-    "pm*rad": ("emittance", 1e-12), "um*rad": ("emittance", 1e-6),
+    "m*rad": ("emittance", 1.0),
+    "mm*mrad": ("emittance", 1e-6),
+    "nm*rad": ("emittance", 1e-9),
+    "pm*rad": ("emittance", 1e-12),
+    "um*rad": ("emittance", 1e-6),
     # power
-    "W": ("power", 1.0), "kW": ("power", 1e3), "mW": ("power", 1e-3),
+    "W": ("power", 1.0),
+    "kW": ("power", 1e3),
+    "mW": ("power", 1e-3),
     # dimensionless
-    "1": ("dimensionless", 1.0), "%": ("dimensionless", 1e-2),
+    "1": ("dimensionless", 1.0),
+    "%": ("dimensionless", 1e-2),
 }
 
 DIMENSIONS = sorted({dim for dim, _ in UNITS.values()})
@@ -64,7 +108,9 @@ def _where(source, location):
     return {"source": source, "location": location}
 
 
-def unit_factor(unit: str, dimension: str, *, mass: float | None = None, source=None, location=None) -> float:
+def unit_factor(
+    unit: str, dimension: str, *, mass: float | None = None, source=None, location=None
+) -> float:
     """Factor that converts a value in ``unit`` to SI, checking its dimension.
 
     Parameters
@@ -84,16 +130,22 @@ def unit_factor(unit: str, dimension: str, *, mass: float | None = None, source=
     u = unit.strip().replace(" ", "")
     if u not in UNITS:
         accepted = ", ".join(k for k, (d, _) in UNITS.items() if d == dimension)
-        raise InputError(f"unknown unit {unit!r}; for {dimension} use one of: {accepted}", **_where(source, location))
+        raise InputError(
+            f"unknown unit {unit!r}; for {dimension} use one of: {accepted}",
+            **_where(source, location),
+        )
     dim, factor = UNITS[u]
     if dim != dimension:
         accepted = ", ".join(k for k, (d, _) in UNITS.items() if d == dimension)
         raise InputError(
-            f"unit {unit!r} is a unit of {dim}, expected {dimension} ({accepted})", **_where(source, location)
+            f"unit {unit!r} is a unit of {dim}, expected {dimension} ({accepted})",
+            **_where(source, location),
         )
     if u == "mc":
         if mass is None:
-            raise InputError("momentum in units of mc needs the particle mass", **_where(source, location))
+            raise InputError(
+                "momentum in units of mc needs the particle mass", **_where(source, location)
+            )
         factor = mass * c
     return factor
 
@@ -101,7 +153,9 @@ def unit_factor(unit: str, dimension: str, *, mass: float | None = None, source=
 def split_quantity(value, *, source=None, location=None) -> tuple[float, str | None]:
     """Split ``"25 mm"`` into ``(25.0, "mm")``; a bare number gives ``(value, None)``."""
     if isinstance(value, bool):
-        raise InputError(f"expected a number with a unit, got {value!r}", **_where(source, location))
+        raise InputError(
+            f"expected a number with a unit, got {value!r}", **_where(source, location)
+        )
     if isinstance(value, int | float):
         return float(value), None
     if not isinstance(value, str):
@@ -145,7 +199,9 @@ def parse_quantity(
         The value in SI.
     """
     number, unit = split_quantity(value, source=source, location=location)
-    factor = unit_factor(unit or default_unit, dimension, mass=mass, source=source, location=location)
+    factor = unit_factor(
+        unit or default_unit, dimension, mass=mass, source=source, location=location
+    )
     result = number * factor
     if not math.isfinite(result):
         raise InputError(f"{value!r} is not a finite {dimension}", **_where(source, location))

@@ -267,7 +267,7 @@ def test_rigid_tilt_and_exact_offset_radiate_alike():
     # and equals the reference pattern shifted by the tilt. Tilt = 2 grid steps, so the shift is exact
     # on the grid. Tolerance 2e-3 of the peak: the two paths are sampled differently by radiate
     # at refinement 1 (its sampling error ~1.7e-3 of the peak, measured).
-    ref = ideal.planar_undulator(E_BEAM, LU, 10, K, samples_per_period=32)
+    ref = ideal.planar_undulator(E_BEAM, LU, 10, K, samples_per_period=48)
     g = gamma_from_energy(E_BEAM)
     step = 0.1 / g
     th = step * np.arange(-12, 13)
@@ -303,7 +303,7 @@ def test_offset_rejects_bad_input():
 
 # ---------------------------------------------------------------------------- Monte Carlo driver
 def _mc_setup():
-    ref = ideal.planar_undulator(E_BEAM, LU, 10, K, samples_per_period=32)
+    ref = ideal.planar_undulator(E_BEAM, LU, 10, K, samples_per_period=48)
     g = gamma_from_energy(E_BEAM)
     obs = AngularGrid(np.linspace(-0.6 / g, 0.6 / g, 13), [0.0])
     return ref, obs, np.array([1150.0, 1190.0])

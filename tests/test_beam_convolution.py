@@ -115,7 +115,7 @@ E1_ANG = float(photon_energy_to_wavelength(1.0) / (LU * (1 + K_ANG**2 / 2) / (2 
 
 
 def _undulator(n_periods, k=K):
-    return ideal.planar_undulator(E_BEAM, LU, n_periods, k, samples_per_period=32)
+    return ideal.planar_undulator(E_BEAM, LU, n_periods, k, samples_per_period=48)
 
 
 def _single_2d(n_points=121, half=3.0, n_periods=10):

@@ -12,7 +12,7 @@ title = "cli test"
 kind = "magnets"
 energy = "2.5 GeV"
 current = "0.3 A"
-samples_per_period = 16
+samples_per_period = 48
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"
@@ -124,7 +124,7 @@ def test_info_on_job_result_and_trajectory(job, tmp_path, capsys):
     from lwrad.tracking import track
 
     traj_file = tmp_path / "t.h5"
-    write_trajectory(track(PlanarUndulator(0.025, 5, 0.6), 2.5e9, samples_per_period=16), traj_file)
+    write_trajectory(track(PlanarUndulator(0.025, 5, 0.6), 2.5e9, samples_per_period=48), traj_file)
     assert main(["info", str(traj_file)]) == 0
     assert capsys.readouterr().out.strip()
 

@@ -22,7 +22,7 @@ def test_planar_undulator_kinematics():
 
 def test_planar_positions_consistent_with_velocity():
     # dr/dt = βc: compare a Hermite midpoint with the Gauss-integrated samples at double density.
-    tr = ideal.planar_undulator(1e9, 0.03, 4, 2.0, samples_per_period=32)
+    tr = ideal.planar_undulator(1e9, 0.03, 4, 2.0, samples_per_period=48)
     fine = ideal.planar_undulator(1e9, 0.03, 4, 2.0, samples_per_period=64)
     mid = tr.interpolate(fine.t[1::2])
     assert np.max(np.abs(mid.r - fine.r[1::2])) < 1e-9 * 0.03

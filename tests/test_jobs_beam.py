@@ -28,7 +28,7 @@ SOURCE = """
 kind = "magnets"
 energy = "2.5 GeV"
 current = "0.3 A"
-samples_per_period = 32
+samples_per_period = 48
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"

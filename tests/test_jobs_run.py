@@ -22,7 +22,7 @@ title = "tiny test job"
 kind = "magnets"
 energy = "2.5 GeV"
 current = "0.3 A"
-samples_per_period = 32
+samples_per_period = 48
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"
@@ -176,7 +176,7 @@ def test_trajectory_file_source_hashed_and_reported(tmp_path):
     from lwrad.magnets import PlanarUndulator
     from lwrad.tracking import track
 
-    traj = track(PlanarUndulator(0.025, 5, 0.6), 2.5e9, samples_per_period=32)
+    traj = track(PlanarUndulator(0.025, 5, 0.6), 2.5e9, samples_per_period=48)
     (tmp_path / "data").mkdir()
     write_trajectory(traj, tmp_path / "data" / "u.h5")
     (tmp_path / "job.toml").write_text(

@@ -30,7 +30,7 @@ JOB = """
 kind = "magnets"
 energy = "2.5 GeV"
 current = "0.3 A"
-samples_per_period = 16
+samples_per_period = 48
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"

@@ -174,7 +174,7 @@ def test_retarded_time_solver_reports_its_figures():
     # non-converged pair would warn, tests/test_timedomain.py::test_non_convergence_is_reported)
     from lwrad.timedomain import fields, observer_times
 
-    traj = planar_undulator(ENERGY, PERIOD, N_PERIODS, K, samples_per_period=32)
+    traj = planar_undulator(ENERGY, PERIOD, N_PERIODS, K, samples_per_period=48)
     point = np.array([[5e-4, 0.0, 5.0]])
     t0 = observer_times(traj, point[0])
     t = t0[0] + (t0[-1] - t0[0]) * np.linspace(0.01, 0.99, 50)  # strictly inside the pulse

@@ -44,7 +44,7 @@ JOB = """
 kind = "magnets"
 energy = {energy}
 current = "0.3 A"
-samples_per_period = 32
+samples_per_period = 48
 [[sources.u.magnet]]
 type = "planar_undulator"
 period = "25 mm"

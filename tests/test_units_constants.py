@@ -45,7 +45,9 @@ def test_gamma_and_one_minus_beta():
     assert C.gamma_from_energy(2.5e9) == pytest.approx(2.5e9 / (mec2_mev * 1e6), rel=1e-9)
     # 1 − β without cancellation agrees with the high-precision series 1/(2γ²) + 1/(8γ⁴).
     gam = 1e5
-    assert C.one_minus_beta_from_gamma(gam) == pytest.approx(1 / (2 * gam**2) + 1 / (8 * gam**4), rel=1e-12)
+    assert C.one_minus_beta_from_gamma(gam) == pytest.approx(
+        1 / (2 * gam**2) + 1 / (8 * gam**4), rel=1e-12
+    )
 
 
 def test_particles():

@@ -99,7 +99,7 @@ INPUT_ERROR_FACTOR = 3.0  # field error / input phase error, measured ≤ 3 (mod
 # While False the figures are only recorded (``input_resolved`` False in the diagnostics),
 # because several job/demo tests still use 16 points per period at tolerance 1e-4 (true
 # error ~5e-4): raise their density to 64, then set this to True.
-INPUT_GUARD_WARNS = False
+INPUT_GUARD_WARNS = True
 _MAX_REFINE = 5  # F up to 2**5
 _RESEED = 64  # phasor recurrence re-seeded every 64 energies (round-off ~64 ε)
 _TAIL_STEP = 0.1  # tail step / (distance to closest-approach point / v), divided by F
