@@ -76,8 +76,9 @@ __all__ = [
 
 #: bytes of one Python process with lwrad, NumPy, SciPy, numba and h5py loaded and the
 #: radiation kernels compiled or loaded from numba's cache (measured on the development
-#: machine, 2026-12-02: 210 MB resident with a warm cache, 345–430 MB while compiling; the cold figure, rounded up)
-PROCESS_BASELINE = 450_000_000
+#: machine, 2026-12-02: 210 MB resident with a warm cache, 621 MB in a fresh install where
+#: numba compiles every kernel; the cold figure, rounded up)
+PROCESS_BASELINE = 700_000_000
 #: result-file and checkpoint bytes beside the arrays (provenance, job text, HDF5 metadata
 #: of a few hundred chunk files); a generous round figure, common practice, no source
 OUTPUT_OVERHEAD = 16_000_000
