@@ -46,43 +46,24 @@ REPO = HERE.parent
 OUT = HERE / "reliability_out"
 SEED = 20261202
 
-JOB = """
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 16
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = {n_periods}
-k = 1.4
-[[study]]
-name = "maps"
-quantities = ["flux_density", "stokes"]
-photon_energy = {{ start = "1 keV", stop = "1.3 keV", count = {ne} }}
-[study.observer]
-kind = "angular"
-theta_x = {{ start = -0.1, stop = 0.1, count = {n} }}
-theta_y = {{ start = -0.1, stop = 0.1, count = {n} }}
-[run]
-chunk_pixels = {chunk}
-"""
+TESTS = REPO / "tests"
+
+
+def _jobkit():
+    """The tests' shared job-file helpers (tests/jobkit.py)."""
+    if str(TESTS) not in sys.path:
+        sys.path.insert(0, str(TESTS))
+    import jobkit
+
+    return jobkit
+
+
+def _job_text(**sizes):
+    return _jobkit().angular_maps_job(samples_per_period=16, **sizes)
 
 
 def _lwrad_run(job, out, *extra):
-    return [
-        sys.executable,
-        "-m",
-        "lwrad",
-        "run",
-        str(job),
-        "-o",
-        str(out),
-        "--quiet",
-        "--no-calibration",
-        *extra,
-    ]
+    return _jobkit().lwrad_run_argv(job, out, *extra)
 
 
 # ----------------------------------------------------------------------------- fuzz
@@ -155,14 +136,7 @@ def fuzz(full: bool) -> dict:
 
 
 def _arrays(path):
-    from lwrad.results import load
-
-    case = load(path).cases["maps"]
-    return {
-        "flux_density": case.flux_density.values,
-        "stokes": case.stokes.values,
-        "field": case.spectra.field,
-    }
+    return _jobkit().maps_arrays(path)
 
 
 def kill_resume(trials: int) -> dict:
@@ -171,7 +145,7 @@ def kill_resume(trials: int) -> dict:
     rng = np.random.default_rng(SEED)
     d = Path(tempfile.mkdtemp(prefix="lwrad-rel-kill-"))
     job = d / "job.toml"
-    job.write_text(JOB.format(n_periods=20, ne=12, n=8, chunk=2))
+    job.write_text(_job_text(n_periods=20, ne=12, n=8, chunk=2))
     n_chunks = 32
     ref = _arrays(run_job(job, d / "ref.h5", workers=1, quiet=True))
     rows = []
@@ -226,7 +200,7 @@ def memory(sizes) -> dict:
     rows = []
     for ne, n, chunk in sizes:
         job = d / f"job_{ne}_{n}.toml"
-        job.write_text(JOB.format(n_periods=5, ne=ne, n=n, chunk=chunk))
+        job.write_text(_job_text(n_periods=5, ne=ne, n=n, chunk=chunk))
         prep = prepare(load_job(job))
         est = estimate_memory(prep.plan, prep.n_samples, workers=1, backend="serial")
         proc = subprocess.Popen(
@@ -257,7 +231,7 @@ def memory(sizes) -> dict:
 
 
 def determinism() -> dict:
-    sys.path.insert(0, str(REPO / "tests"))
+    _jobkit()  # puts tests/ on sys.path
     from test_robust_determinism import JOB as DJOB
     from test_robust_determinism import RUN_ONLY, h5_inventory
 

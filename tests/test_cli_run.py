@@ -2,23 +2,15 @@
 
 import numpy as np
 import pytest
+from jobkit import undulator_source
 
 from lwrad.cli import build_parser, main
 from lwrad.results import load
 
-JOB = """
-title = "cli test"
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 48
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 5
-k = 1.4
-[[study]]
+JOB = (
+    '\ntitle = "cli test"\n'
+    + undulator_source()
+    + """[[study]]
 name = "spec"
 quantities = ["flux_density", "power_density"]
 photon_energy = ["1.1 keV", "1.2 keV"]
@@ -29,6 +21,7 @@ theta_y = 0
 [run]
 chunk_pixels = 2
 """
+)
 
 
 @pytest.fixture

@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from jobkit import undulator_source
 
 from lwrad.beam import ElectronBeam
 from lwrad.beam_radiation import convolve_beam, monte_carlo
@@ -23,18 +24,7 @@ from lwrad.radiation import radiate
 from lwrad.results import load
 from lwrad.testing import scaled
 
-SOURCE = """
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 48
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 5
-k = 1.4
-"""
+SOURCE = "\n" + undulator_source()
 
 # invented beam values (the "Saltmarsh" ring of the demo scenario)
 BEAM = """

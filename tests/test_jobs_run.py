@@ -8,6 +8,7 @@ import os
 
 import numpy as np
 import pytest
+from jobkit import fields_at_points_study, undulator_source
 
 from lwrad.errors import InputError
 from lwrad.jobs.planning import check_memory, estimate_memory, estimate_output_bytes
@@ -16,19 +17,10 @@ from lwrad.jobs.schema import load_job, parse_job
 from lwrad.results import load
 
 # A short undulator (5 periods, 2.5 GeV, K = 1.4): first harmonic near 1.2 keV.
-TINY = """
-title = "tiny test job"
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 48
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 5
-k = 1.4
-
+TINY = (
+    '\ntitle = "tiny test job"\n'
+    + undulator_source()
+    + """
 [[study]]
 name = "spec"
 quantities = ["flux_density", "flux", "stokes", "power_density"]
@@ -50,18 +42,13 @@ distance = "10 m"
 x = { start = "-2 mm", stop = "2 mm", count = 4 }
 y = [-0.5, 0.5]
 
-[[study]]
-name = "td"
-quantities = ["fields"]
-time = { start = "0 ps", stop = "0.02 ps", count = 8 }
-time_origin = "first_arrival"
-[study.observer]
-kind = "points"
-points = [["0.5 mm", 0, 5], ["1 mm", 0, "5 m"], [0, "1 mm", 5]]
-
+"""
+    + fields_at_points_study(8)
+    + """
 [run]
 chunk_pixels = 4
 """
+)
 
 
 @pytest.fixture

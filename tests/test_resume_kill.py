@@ -8,39 +8,18 @@ holds a few chunks, at a chunk count drawn from a seeded generator (seed
 import os
 import signal
 import subprocess
-import sys
 import time
 
 import numpy as np
 import pytest
+from jobkit import angular_maps_job, lwrad_run_argv, maps_arrays
 
 from lwrad.jobs.runner import run_job
 from lwrad.results import load
 from lwrad.testing import scaled
 
 # 8 × 8 pixels in chunks of 2 → 32 chunks of roughly 0.05 s each on the development machine.
-KILL_JOB = """
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 48
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 20
-k = 1.4
-[[study]]
-name = "maps"
-quantities = ["flux_density", "stokes"]
-photon_energy = { start = "1 keV", stop = "1.3 keV", count = 12 }
-[study.observer]
-kind = "angular"
-theta_x = { start = -0.1, stop = 0.1, count = 8 }
-theta_y = { start = -0.1, stop = 0.1, count = 8 }
-[run]
-chunk_pixels = 2
-"""
+KILL_JOB = angular_maps_job(n_periods=20, ne=12, n=8, chunk=2)
 N_CHUNKS = 32
 
 
@@ -51,19 +30,7 @@ def _chunks_done(parts):
 def _start_and_kill(job, out, kill_after):
     env = dict(os.environ)
     proc = subprocess.Popen(
-        [
-            sys.executable,
-            "-m",
-            "lwrad",
-            "run",
-            str(job),
-            "-o",
-            str(out),
-            "--workers",
-            "1",
-            "--quiet",
-            "--no-calibration",
-        ],
+        lwrad_run_argv(job, out, "--workers", "1"),
         stdout=subprocess.PIPE,
         stderr=subprocess.PIPE,
         env=env,
@@ -86,20 +53,11 @@ def _start_and_kill(job, out, kill_after):
     return _chunks_done(parts)
 
 
-def _arrays(path):
-    case = load(path).cases["maps"]
-    return {
-        "flux_density": case.flux_density.values,
-        "stokes": case.stokes.values,
-        "field": case.spectra.field,
-    }
-
-
 @pytest.fixture(scope="module")
 def reference(tmp_path_factory):
     d = tmp_path_factory.mktemp("ref")
     (d / "job.toml").write_text(KILL_JOB)
-    return _arrays(run_job(d / "job.toml", d / "ref.h5", workers=1, quiet=True))
+    return maps_arrays(run_job(d / "job.toml", d / "ref.h5", workers=1, quiet=True))
 
 
 def test_sigkill_then_resume_identical(tmp_path, reference):
@@ -116,7 +74,7 @@ def test_sigkill_then_resume_identical(tmp_path, reference):
         assert not out.exists()
         # resume (with another number of workers than the killed run) and compare
         resumed = run_job(job, out, workers=2, resume=True, quiet=True)
-        result = _arrays(resumed)
+        result = maps_arrays(resumed)
         for name in reference:
             np.testing.assert_array_equal(result[name], reference[name], err_msg=name)
         prov = load(resumed).provenance

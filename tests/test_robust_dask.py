@@ -15,6 +15,7 @@ import signal
 import time
 
 import pytest
+from jobkit import angular_maps_job
 from test_robust_determinism import RUN_ONLY, assert_same_files
 
 from lwrad.jobs import runner
@@ -25,28 +26,7 @@ distributed = pytest.importorskip(
 )
 
 # invented test scenario: 6 × 6 angles in chunks of 2 pixels → 18 chunks of a few 10 ms each
-JOB = """
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 48
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 10
-k = 1.4
-[[study]]
-name = "maps"
-quantities = ["flux_density", "stokes"]
-photon_energy = { start = "1 keV", stop = "1.3 keV", count = 24 }
-[study.observer]
-kind = "angular"
-theta_x = { start = -0.1, stop = 0.1, count = 6 }
-theta_y = { start = -0.1, stop = 0.1, count = 6 }
-[run]
-chunk_pixels = 2
-"""
+JOB = angular_maps_job(n_periods=10, ne=24, n=6, chunk=2)
 N_CHUNKS = 18
 KILL_AFTER = 4
 

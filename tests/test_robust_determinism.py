@@ -15,24 +15,16 @@ same), so chunk sizes 1, 5 and 64 are tested for bit equality, not closeness.
 import h5py
 import numpy as np
 import pytest
+from jobkit import fields_at_points_study, undulator_source
 
 from lwrad.jobs.runner import run_job
 
 # invented test scenario: a short planar undulator seen on an angular grid and a screen,
 # plus time-domain fields at three points — every solver group of a job
-JOB = """
-title = "determinism"
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 48
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 5
-k = 1.4
-
+JOB = (
+    '\ntitle = "determinism"\n'
+    + undulator_source()
+    + """
 [[study]]
 name = "spec"
 quantities = ["flux_density", "flux", "stokes", "power_density"]
@@ -52,18 +44,13 @@ distance = "10 m"
 x = { start = "-2 mm", stop = "2 mm", count = 4 }
 y = [-0.5, 0.5]
 
-[[study]]
-name = "td"
-quantities = ["fields"]
-time = { start = "0 ps", stop = "0.02 ps", count = 6 }
-time_origin = "first_arrival"
-[study.observer]
-kind = "points"
-points = [["0.5 mm", 0, 5], ["1 mm", 0, "5 m"], [0, "1 mm", 5]]
-
+"""
+    + fields_at_points_study(6)
+    + """
 [run]
 chunk_pixels = 4
 """
+)
 
 #: provenance attributes that describe when and where, not what
 RUN_ONLY = ("start_time", "end_time", "host")

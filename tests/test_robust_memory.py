@@ -17,9 +17,9 @@ and notes/RELIABILITY.md for larger jobs, where the margin shrinks (1.14 at
 import io
 import os
 import subprocess
-import sys
 
 import pytest
+from jobkit import angular_maps_job, lwrad_run_argv
 
 from lwrad import cli
 from lwrad.errors import InputError
@@ -36,48 +36,12 @@ from lwrad.testing import scaled
 MAX_OVER = 4.0
 
 # invented test scenario: a 5-period undulator on an angular grid of n × n pixels
-JOB = """
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 48
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 5
-k = 1.4
-[[study]]
-name = "maps"
-quantities = ["flux_density", "stokes"]
-photon_energy = {{ start = "1 keV", stop = "1.3 keV", count = {ne} }}
-[study.observer]
-kind = "angular"
-theta_x = {{ start = -0.1, stop = 0.1, count = {n} }}
-theta_y = {{ start = -0.1, stop = 0.1, count = {n} }}
-[run]
-chunk_pixels = {chunk}
-"""
 
 
 def peak_rss_of_run(job, out) -> int:
     """Peak resident memory (bytes) of ``lwrad run job -o out`` in a child process."""
     proc = subprocess.Popen(
-        [
-            sys.executable,
-            "-m",
-            "lwrad",
-            "run",
-            str(job),
-            "-o",
-            str(out),
-            "--workers",
-            "1",
-            "--backend",
-            "serial",
-            "--quiet",
-            "--no-calibration",
-        ],
+        lwrad_run_argv(job, out, "--workers", "1", "--backend", "serial"),
         stdout=subprocess.DEVNULL,
         stderr=subprocess.PIPE,
     )
@@ -99,7 +63,7 @@ SIZES = scaled(
 @pytest.mark.parametrize("ne, n, chunk", SIZES)
 def test_estimate_is_an_upper_bound_within_a_factor(tmp_path, ne, n, chunk):
     job = tmp_path / "job.toml"
-    job.write_text(JOB.format(ne=ne, n=n, chunk=chunk))
+    job.write_text(angular_maps_job(n_periods=5, ne=ne, n=n, chunk=chunk))
     prep = prepare(load_job(job))
     est = estimate_memory(prep.plan, prep.n_samples, workers=1, backend="serial").total
     peak = peak_rss_of_run(job, tmp_path / "out.h5")
@@ -122,7 +86,7 @@ def _fitting_limit(job):
 
 def test_oversized_job_refused_before_any_work_then_the_suggestion_runs(tmp_path, monkeypatch):
     path = tmp_path / "job.toml"
-    path.write_text(JOB.format(ne=40, n=16, chunk=256))
+    path.write_text(angular_maps_job(n_periods=5, ne=40, n=16, chunk=256))
     job = load_job(path)
     limit, big = _fitting_limit(job)
 
@@ -164,7 +128,7 @@ def test_oversized_job_refused_before_any_work_then_the_suggestion_runs(tmp_path
 
 def test_command_line_refusal_names_the_estimate(tmp_path, capsys):
     path = tmp_path / "job.toml"
-    path.write_text(JOB.format(ne=40, n=16, chunk=256))
+    path.write_text(angular_maps_job(n_periods=5, ne=40, n=16, chunk=256))
     code = cli.main(
         [
             "run",

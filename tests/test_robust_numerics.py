@@ -16,6 +16,7 @@ import warnings
 import h5py
 import numpy as np
 import pytest
+from jobkit import undulator_source
 
 from lwrad.errors import ConvergenceError, ConvergenceWarning
 from lwrad.ideal import planar_undulator
@@ -99,18 +100,10 @@ def test_unreachable_tolerance_warns_and_says_so_in_the_result():
 
 
 # invented test scenario for the file checks: a short undulator, every solver group
-JOB = """
-[sources.u]
-kind = "magnets"
-energy = "2.5 GeV"
-current = "0.3 A"
-samples_per_period = 64
-[[sources.u.magnet]]
-type = "planar_undulator"
-period = "25 mm"
-n_periods = 5
-k = 1.4
-[[study]]
+JOB = (
+    "\n"
+    + undulator_source(samples_per_period=64)
+    + """[[study]]
 name = "spec"
 quantities = ["flux_density"]
 photon_energy = ["1.1 keV", "1.2 keV"]
@@ -122,6 +115,7 @@ theta_y = 0
 [run]
 chunk_pixels = 2
 """
+)
 
 
 def test_convergence_figures_reach_the_result_file(tmp_path):

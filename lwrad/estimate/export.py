@@ -25,13 +25,17 @@ from lwrad.errors import InputError
 __all__ = ["write_csv", "write_hdf5"]
 
 
-def _refuse_existing(path, overwrite: bool) -> None:
+def _write_new(path, write, *, overwrite: bool, suffix: str) -> str:
+    """Refuse an existing ``path`` (unless ``overwrite``), then ``write(tmp)`` atomically."""
+    from lwrad.atomic import atomic_write
+
     # Checked here too, so the message names the command-line option, not the Python one.
     if not overwrite and os.path.exists(os.fspath(path)):
         raise InputError(
             "the file exists; not overwritten (use --force or overwrite=True)",
             source=os.fspath(path),
         )
+    return atomic_write(path, write, overwrite=overwrite, suffix=suffix)
 
 
 def write_csv(table, path, *, overwrite: bool = False) -> str:
@@ -51,9 +55,6 @@ def write_csv(table, path, *, overwrite: bool = False) -> str:
     str
         The absolute path written.
     """
-    from lwrad.atomic import atomic_write
-
-    _refuse_existing(path, overwrite)
 
     def write(tmp: str) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
@@ -67,7 +68,7 @@ def write_csv(table, path, *, overwrite: bool = False) -> str:
             for row in table.rows:
                 writer.writerow([row.key, row.label, repr(float(row.value)), row.unit, row.note])
 
-    return atomic_write(path, write, overwrite=overwrite, suffix=".csv")
+    return _write_new(path, write, overwrite=overwrite, suffix=".csv")
 
 
 def write_hdf5(table, path, *, overwrite: bool = False) -> str:
@@ -90,9 +91,6 @@ def write_hdf5(table, path, *, overwrite: bool = False) -> str:
     import h5py
 
     from lwrad._version import __version__
-    from lwrad.atomic import atomic_write
-
-    _refuse_existing(path, overwrite)
 
     def write(tmp: str) -> None:
         with h5py.File(tmp, "w") as fh:
@@ -113,4 +111,4 @@ def write_hdf5(table, path, *, overwrite: bool = False) -> str:
                 ds = curves.create_dataset(name, data=values)
                 ds.attrs["unit"] = unit
 
-    return atomic_write(path, write, overwrite=overwrite, suffix=".h5")
+    return _write_new(path, write, overwrite=overwrite, suffix=".h5")

@@ -360,6 +360,27 @@ class EllipticalUndulator(Magnet):
         return bx, by, 0.0
 
 
+def _one_peak_field(d: dict, peak_field: float) -> dict:
+    """Replace the two fields and the phase of a description by one peak field.
+
+    Parameters
+    ----------
+    d : dict
+        :meth:`EllipticalUndulator.to_dict` of a planar or helical undulator (changed in place).
+    peak_field : float
+        The one peak field B0, T.
+
+    Returns
+    -------
+    dict
+        ``d``, with ``peak_field`` instead of ``peak_field_y``, ``peak_field_x`` and ``phase``.
+    """
+    for key in ("peak_field_y", "peak_field_x", "phase"):
+        d.pop(key)
+    d["peak_field"] = peak_field
+    return d
+
+
 class PlanarUndulator(EllipticalUndulator):
     """A planar undulator: vertical field By, horizontal deflection.
 
@@ -423,11 +444,7 @@ class PlanarUndulator(EllipticalUndulator):
         return cls(period, n_periods, b0, **kwargs)
 
     def to_dict(self) -> dict:
-        d = super().to_dict()
-        for key in ("peak_field_y", "peak_field_x", "phase"):
-            d.pop(key)
-        d["peak_field"] = self._b0y
-        return d
+        return _one_peak_field(super().to_dict(), self._b0y)
 
 
 class HelicalUndulator(EllipticalUndulator):
@@ -486,9 +503,6 @@ class HelicalUndulator(EllipticalUndulator):
         return self._handedness
 
     def to_dict(self) -> dict:
-        d = super().to_dict()
-        for key in ("peak_field_y", "peak_field_x", "phase"):
-            d.pop(key)
-        d["peak_field"] = self._b0y
+        d = _one_peak_field(super().to_dict(), self._b0y)
         d["handedness"] = self._handedness
         return d
