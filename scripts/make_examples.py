@@ -57,7 +57,7 @@ def _gamma_beta(energy_ev, mass=m_e):
 
 
 def undulator_trajectory(
-    samples_per_period: int = 12, n_periods: int = N_PERIODS, keep_periods=None
+    samples_per_period: int = 48, n_periods: int = N_PERIODS, keep_periods=None
 ) -> Trajectory:
     """The analytic SM-U25 path (module docstring), centred at t = 0, z = 0.
 

@@ -328,12 +328,12 @@ def test_bundled_examples_load_and_match_the_invented_scenario():
     # peak angle K/γ of an ideal planar undulator (X-ray Data Booklet sec. 2.1); the analytic path has it exactly
     np.testing.assert_allclose(np.max(np.abs(ref.beta[:, 0])) * gamma, 1.4, rtol=1e-12)
     # one central period advances z by λu = 25 mm: zero crossings of β_x from linear interpolation
-    # (exact at a crossing up to the curvature of β_x between samples, < 1e-6 m at 12 samples per period)
+    # (exact at a crossing up to the curvature of β_x between samples, < 1e-6 m at 12 samples per period, looser than the 48 now used)
     bx, z = ref.beta[:, 0], ref.r[:, 2]
     i = np.flatnonzero((bx[:-1] < 0) & (bx[1:] >= 0))
     crossings = z[i] - bx[i] * (z[i + 1] - z[i]) / (bx[i + 1] - bx[i])
     np.testing.assert_allclose(np.diff(crossings)[5:-5], 0.025, rtol=0, atol=1e-6)
-    # the stored β̇ and r belong to the stored β: a spline derivative of β (12 samples per period) agrees
+    # the stored β̇ and r belong to the stored β: a spline derivative of β (48 samples per period; the bound was set at 12) agrees
     # with β̇ inside the device to 7.5e-4 of the peak (measured; bound 2e-3), and the spline integral of
     # βc agrees with r to 5e-10 m in x (amplitude 1.1e-6 m) and 2e-13 m in z (measured; bounds 4x)
     from scipy.interpolate import CubicSpline
@@ -350,7 +350,7 @@ def test_bundled_examples_load_and_match_the_invented_scenario():
     for name in ("sm_u25_momentum_mm.txt", "sm_u25_pathlength_z.dat"):
         other = read_trajectory(EXAMPLES / name)
         # momentum form: unit conversions (mm, ns, MeV/c) cost rounding only (measured 8e-25 s).
-        # path form (clock restarts at 0): spline quadrature of the 2k_u ripple of 1/β_z at 12 samples per
+        # path form (clock restarts at 0): spline quadrature of the 2k_u ripple of 1/β_z at 12 samples per (since raised to 48)
         # period, measured 4.4e-22 s; bound 1e-21 s, i.e. 2e-3 rad of phase at the 1.2 keV fundamental
         np.testing.assert_allclose(other.t - other.t[0], ref.t - ref.t[0], rtol=0, atol=1e-21)
         np.testing.assert_allclose(other.r, ref.r, rtol=0, atol=1e-15)
@@ -381,5 +381,5 @@ def test_bundled_examples_load_and_match_the_invented_scenario():
     # the excerpt (8 samples per period) is the same analytic path: compare where both grids have
     # samples (every quarter period); quadrature on other intervals differs by rounding only
     assert excerpt.n_samples == 17
-    np.testing.assert_allclose(excerpt.t[::2], ref.t[:25:3], rtol=0, atol=1e-24)
-    np.testing.assert_allclose(excerpt.r[::2], ref.r[:25:3], rtol=0, atol=1e-15)
+    np.testing.assert_allclose(excerpt.t[::2], ref.t[:97:12], rtol=0, atol=1e-24)
+    np.testing.assert_allclose(excerpt.r[::2], ref.r[:97:12], rtol=0, atol=1e-15)
