@@ -30,7 +30,7 @@ import numpy as np
 from lwrad.constants import c, e, m_e
 from lwrad.errors import InputError
 
-__all__ = ["Trajectory", "Bunch", "hermite_interpolate"]
+__all__ = ["Trajectory", "Bunch", "hermite_interpolate", "spline_derivative"]
 
 # |β| from the stored arrays and the one implied by γ may differ by rounding of
 # the writer; beyond this relative difference in γ²β² the input is inconsistent.
@@ -95,6 +95,31 @@ def hermite_interpolate(t, y, dydt, t_new):
     dh11 = 3 * s2 - 2 * s_
     dydt_new = dh00 * y0 + dh10 * d0 + dh01 * y1 + dh11 * d1
     return y_new, dydt_new
+
+
+def spline_derivative(x, y, *, what: str, source=None):
+    """First derivative of a not-a-knot cubic spline through ``y(x)`` at the samples.
+
+    Sample spacings so uneven that the spline's linear system is singular or
+    ill-conditioned give an :class:`InputError` (naming ``what``) instead of a
+    SciPy warning and a derivative of no accuracy.
+    """
+    import warnings
+
+    from scipy.interpolate import CubicSpline
+    from scipy.linalg import LinAlgWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", LinAlgWarning)
+        try:
+            with np.errstate(all="ignore"):
+                return CubicSpline(x, y, axis=0, bc_type="not-a-knot")(x, 1)
+        except (LinAlgWarning, np.linalg.LinAlgError, ValueError) as exc:
+            raise InputError(
+                f"cannot derive {what}: the sample spacing is too uneven for a spline ({exc})",
+                source=source,
+                location=what,
+            ) from None
 
 
 class Trajectory:
@@ -236,9 +261,7 @@ class Trajectory:
     def _derive_beta_dot(t, beta):
         if len(t) < 4:
             return np.gradient(beta, t, axis=0)
-        from scipy.interpolate import CubicSpline
-
-        return CubicSpline(t, beta, axis=0, bc_type="not-a-knot")(t, 1)
+        return spline_derivative(t, beta, what="beta_dot")
 
     # -- read-only data -------------------------------------------------------
     t = property(lambda self: self._t, doc="Laboratory time, s, shape (N,).")

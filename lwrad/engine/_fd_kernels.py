@@ -27,7 +27,8 @@ M_m(θ) = ∫₀¹ s^m e^{iθs} ds (upward recurrence for θ ≥ 1, Taylor serie
 below) is exact for that amplitude (a Filon-type rule; L. N. G. Filon, Proc.
 R. Soc. Edinburgh 49 (1928) 38). The error does not grow with the phase
 advance per step, only with the amplitude's variation; at ω → 0 the rule
-reproduces ∫ f dφ. When every step advances by θ ≥ 0.05 the same sum is
+reproduces ∫ f dφ. When every step advances by θ ≥ 0.05 (quadratic: θ ≥ 0.05^(5/3),
+its cancellation goes as ε/θ³ instead of ε/θ⁵) the same sum is
 evaluated by repeated integration by parts as a node sum of the jumps of
 q^(m) times e^{iωφ_k}/(iω)^{m+1}: a few multiply-adds per sample and energy
 (phasors e^{iωφ_k} by recurrence over equally spaced energies), the fast path.
@@ -59,6 +60,9 @@ __all__ = [
 _SERIES_THETA = 1.0  # below: Taylor series of the moments; above: upward recurrence (loss ≤ 4! ε)
 _N_SERIES = 20  # 1/20! ≈ 4e-19: series truncation below double rounding
 _THETA_JUMP = 0.05  # node-sum form when every step advances ≥ 0.05 rad (loss ≲ ε/θ⁵ ≈ 3e6 ε)
+# A quadratic has jumps only up to q'' (rounding ε|f|/Δ², weighted 1/ω³): loss ≲ ε/θ³, the
+# same 3e6 ε bound as the quartic's at θ = 0.05^(5/3) ≈ 0.0068.
+_THETA_JUMP_QUAD = _THETA_JUMP ** (5.0 / 3.0)
 _INV_FACT = np.array([1.0 / math.factorial(j) for j in range(_N_SERIES)])
 
 
@@ -387,8 +391,8 @@ def filon_sum(
     """Filon-type sum I(ω_j) = ∫ q e^{iωφ} dφ of a piecewise polynomial, all energies.
 
     Two evaluations of the same rule: per step with the moments M_m(θ) (used
-    when some step has ωΔ < ``_THETA_JUMP``), and, when every step advances by
-    ωΔ ≥ ``_THETA_JUMP``, the equivalent node sum from repeated integration by
+    when some step has ωΔ < ``_THETA_JUMP``, quadratic: ``_THETA_JUMP_QUAD``), and, when
+    every step advances by at least that, the equivalent node sum from repeated integration by
     parts, Σ_k e^{iωφ_k} Σ_m (−1)^m [q^(m)]_k/(iω)^{m+1} (jumps of q^(m) at
     the nodes), which costs a few multiply-adds per sample and loses at most
     ~ε/θ⁵ to cancellation.
@@ -432,6 +436,7 @@ def filon_sum(
                 j1[i, k] = 0.0
     mr = np.empty(5)
     mi = np.empty(5)
+    theta_jump = _THETA_JUMP if quartic else _THETA_JUMP_QUAD
     if uniform and ne > 1:
         dw = omega[1] - omega[0]
         for k in range(npt):
@@ -449,7 +454,7 @@ def filon_sum(
                 pim[k] = pre[k] * dim[k] + pim[k] * dre[k]
                 pre[k] = a
         inv_w = 1.0 / w
-        if w * dmin >= _THETA_JUMP:
+        if w * dmin >= theta_jump:
             iw2 = inv_w * inv_w
             iw3 = iw2 * inv_w
             iw4 = iw3 * inv_w

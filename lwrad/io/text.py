@@ -73,7 +73,7 @@ from lwrad.io._common import (
     kinematics_from_momentum,
     resolve_particle,
 )
-from lwrad.trajectory import Bunch, Trajectory
+from lwrad.trajectory import Bunch, Trajectory, spline_derivative
 from lwrad.units import UNITS, parse_quantity, unit_factor
 
 __all__ = ["COLUMNS", "HEADER_KEYS", "sniff", "read", "write"]
@@ -659,9 +659,7 @@ def _path_form(columns, col, locate, p, props, reference_energy, mass):
 def _tangent(s, r):
     if s.shape[0] < 3:
         return np.repeat(((r[-1] - r[0]) / (s[-1] - s[0]))[None, :], s.shape[0], axis=0)
-    from scipy.interpolate import CubicSpline
-
-    return CubicSpline(s, r, axis=0, bc_type="not-a-knot")(s, 1)
+    return spline_derivative(s, r, what="direction dr/ds")
 
 
 def _increasing(values, name, locate, p):
