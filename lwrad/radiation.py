@@ -679,7 +679,7 @@ def power_density(source, observer, current, *, n_jobs=1) -> np.ndarray:
                 )
                 return out
 
-            coef = q * q / (16 * math.pi**2 * epsilon_0 * c) * (observer.directions()[:, 2] ** 3)
+            coef = q * q / (16 * math.pi**2 * epsilon_0 * c) * (nvec[:, 2] ** 3)
         else:
             pts = observer.points()
 
