@@ -478,11 +478,17 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
                 nodes, gauss, pts[sl], omega, traj.charge, tails=tails, factor=factor
             )
 
-    parts = run_chunks(work, _pixel_chunks(n_pix), workers=n_jobs, backend="threads")
-    field = np.concatenate(parts, axis=0)  # (P, n_e, 3)
+    chunks = _pixel_chunks(n_pix)
+    field = np.empty((omega.size, n_pix, 3), dtype=complex)
+
+    def place(index, part):  # (P, n_e, 3) per chunk, into the (n_e, pixels, 3) field
+        field[:, chunks[index], :] = part.transpose(1, 0, 2)
+
+    run_chunks(
+        work, chunks, workers=n_jobs, backend="threads", on_result=place, keep_results=False
+    )
     ny, nx = observer.shape
-    field = np.ascontiguousarray(np.moveaxis(field, 0, 1)).reshape(omega.size, ny, nx, 3)
-    return field, diag
+    return field.reshape(omega.size, ny, nx, 3), diag
 
 
 def radiate(

@@ -45,6 +45,8 @@ import math
 import numba as nb
 import numpy as np
 
+from lwrad.engine.nufft import fold, spread
+
 __all__ = [
     "far_amplitudes",
     "near_amplitudes",
@@ -52,6 +54,8 @@ __all__ = [
     "quadratic_coefficients",
     "quartic_coefficients",
     "far_field_pixels",
+    "far_spread_pixels",
+    "far_nufft_combine",
     "far_power_pixels",
     "near_power_pixels",
     "lienard_energy",
@@ -605,6 +609,84 @@ def far_field_pixels(
             # the far field is transverse: E·n = 0
             out_re[p, j, 2] = -(n[0] * ore[j, 0] + n[1] * ore[j, 1]) / n[2]
             out_im[p, j, 2] = -(n[0] * oim[j, 0] + n[1] * oim[j, 1]) / n[2]
+
+
+@nb.njit(nogil=True, cache=True)
+def far_spread_pixels(
+    nvec, t, r, beta, bdot, bddot, ig2, c_light, omega_ref, dw, delta, tau, e3, scratch, grids, ends
+):
+    """The far-field node sums of :func:`filon_sum`, spread for a type-1 NUFFT over energies.
+
+    For each direction the quartic's jumps of orders 2–4 (x and y) are the
+    strengths J_k e^{iω_ref φ_k} at the points Δω φ_k, spread and folded into
+    ``grids[p]`` ((n_grid, 12): complex c = 3·i + m − 2 in columns 2c, 2c + 1;
+    :func:`lwrad.engine.nufft.spread`, ``scratch`` (n_grid + 2·MSP, 12)). The value and slope jumps at the two ends, the last
+    phase and the absolute phase go into ``ends[p]``: columns 0–7 = jump of order
+    m ∈ {0, 1} at end e ∈ {first, last} of component i as ends[p, 4·e + 2·i + m],
+    8 = φ_{N−1} − φ_0, 9 = φ_0, 10 = smallest step in φ.
+    """
+    npt = t.shape[0]
+    phi = np.empty(npt)
+    f = np.empty((npt, 2))
+    fp = np.empty((npt, 2))
+    dg = np.empty((npt - 1, 2))
+    coef = np.empty((npt - 1, 2, 5))
+    jmp = np.empty((npt, 2, 5))
+    cs = np.empty((npt, 12))
+    xs = np.empty(npt)
+    for p in range(nvec.shape[0]):
+        n = nvec[p]
+        phase0 = far_amplitudes(n, t, r, beta, bdot, bddot, ig2, c_light, phi, f, fp, dg)
+        quartic_coefficients(phi, f, fp, dg, coef)
+        dmin = _jumps(phi, coef, False, False, jmp)
+        for k in range(npt):
+            cr = math.cos(omega_ref * phi[k])
+            ci = math.sin(omega_ref * phi[k])
+            xs[k] = dw * phi[k]
+            for i in range(2):
+                for m in range(3):
+                    col = 2 * (3 * i + m)
+                    cs[k, col] = jmp[k, i, m + 2] * cr
+                    cs[k, col + 1] = jmp[k, i, m + 2] * ci
+        spread(xs, cs, scratch, delta, tau, e3)
+        fold(scratch, grids[p])
+        for e in range(2):
+            k = 0 if e == 0 else npt - 1
+            for i in range(2):
+                for m in range(2):
+                    ends[p, 4 * e + 2 * i + m] = jmp[k, i, m]
+        ends[p, 8] = phi[npt - 1]
+        ends[p, 9] = phase0
+        ends[p, 10] = dmin
+
+
+@nb.njit(nogil=True, cache=True)
+def far_nufft_combine(spec, index, scale, ends, omega, nvec, out):
+    """Far-field integrals from the transformed node sums of :func:`far_spread_pixels`.
+
+    I_i(ω) = e^{iωφ_0} [Σ_{m=2..4} (−1)^m S_{i,m}(ω)/(iω)^{m+1} + end terms of
+    orders 0 and 1], S = spec[p, index[j], c]·scale[j]; z from E·n = 0.
+    out : (P, n_e, 3) complex.
+    """
+    for p in range(spec.shape[0]):
+        n = nvec[p]
+        for j in range(omega.shape[0]):
+            w = omega[j]
+            iw = 1.0 / (1j * w)
+            iw2 = iw * iw
+            iw3 = iw2 * iw
+            e_last = complex(math.cos(w * ends[p, 8]), math.sin(w * ends[p, 8]))
+            e_abs = complex(math.cos(w * ends[p, 9]), math.sin(w * ends[p, 9]))
+            col = index[j]
+            sc = scale[j]
+            for i in range(2):
+                acc = (
+                    spec[p, col, 3 * i] - spec[p, col, 3 * i + 1] * iw + spec[p, col, 3 * i + 2] * iw2
+                ) * (sc * iw3)
+                acc += ends[p, 2 * i] * iw - ends[p, 2 * i + 1] * iw2
+                acc += e_last * (ends[p, 4 + 2 * i] * iw - ends[p, 5 + 2 * i] * iw2)
+                out[p, j, i] = acc * e_abs
+            out[p, j, 2] = -(n[0] * out[p, j, 0] + n[1] * out[p, j, 1]) / n[2]
 
 
 @nb.njit(nogil=True, cache=True)
