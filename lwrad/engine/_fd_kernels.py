@@ -55,7 +55,9 @@ __all__ = [
     "quartic_coefficients",
     "far_field_pixels",
     "far_spread_pixels",
-    "far_nufft_combine",
+    "far_nufft_ends",
+    "node_spread",
+    "nufft_node_sums",
     "far_power_pixels",
     "near_power_pixels",
     "lienard_energy",
@@ -612,6 +614,43 @@ def far_field_pixels(
 
 
 @nb.njit(nogil=True, cache=True)
+def _spread_jumps(phi, jmp, m_first, n_orders, omega_ref, dw, delta, tau, e3, cs, xs, scratch):
+    # strengths J_{i,m,k} e^{iω_ref φ_k} of orders m_first … m_first + n_orders − 1 at the
+    # points Δω φ_k; complex c = n_orders·i + m − m_first in real columns 2c, 2c + 1
+    npt = phi.shape[0]
+    nc = jmp.shape[1]
+    for k in range(npt):
+        cr = math.cos(omega_ref * phi[k])
+        ci = math.sin(omega_ref * phi[k])
+        xs[k] = dw * phi[k]
+        for i in range(nc):
+            for m in range(n_orders):
+                col = 2 * (n_orders * i + m)
+                cs[k, col] = jmp[k, i, m + m_first] * cr
+                cs[k, col + 1] = jmp[k, i, m + m_first] * ci
+    spread(xs, cs, scratch, delta, tau, e3)
+
+
+@nb.njit(nogil=True, cache=True)
+def node_spread(phi, coef, tail_lo, tail_hi, omega_ref, dw, delta, tau, e3, scratch, grid):
+    """Node sums of a quadratic rule (orders 0–2, all nodes), spread for a type-1 NUFFT.
+
+    The NUFFT form of :func:`filon_sum`'s node sum for ``quartic=False``: strengths
+    J_{i,m,k} e^{iω_ref φ_k} at the points Δω φ_k, folded into ``grid`` (n_grid,
+    2·3·C) (complex c = 3·i + m; :func:`lwrad.engine.nufft.spread`, ``scratch``
+    (n_grid + 2·msp, 6·C)). Returns the smallest step in φ.
+    """
+    npt = phi.shape[0]
+    jmp = np.empty((npt, coef.shape[1], 5))
+    dmin = _jumps(phi, coef, tail_lo, tail_hi, jmp)
+    cs = np.empty((npt, scratch.shape[1]))
+    xs = np.empty(npt)
+    _spread_jumps(phi, jmp, 0, 3, omega_ref, dw, delta, tau, e3, cs, xs, scratch)
+    fold(scratch, grid)
+    return dmin
+
+
+@nb.njit(nogil=True, cache=True)
 def far_spread_pixels(
     nvec, t, r, beta, bdot, bddot, ig2, c_light, omega_ref, dw, delta, tau, e3, scratch, grids, ends
 ):
@@ -620,10 +659,11 @@ def far_spread_pixels(
     For each direction the quartic's jumps of orders 2–4 (x and y) are the
     strengths J_k e^{iω_ref φ_k} at the points Δω φ_k, spread and folded into
     ``grids[p]`` ((n_grid, 12): complex c = 3·i + m − 2 in columns 2c, 2c + 1;
-    :func:`lwrad.engine.nufft.spread`, ``scratch`` (n_grid + 2·MSP, 12)). The value and slope jumps at the two ends, the last
-    phase and the absolute phase go into ``ends[p]``: columns 0–7 = jump of order
-    m ∈ {0, 1} at end e ∈ {first, last} of component i as ends[p, 4·e + 2·i + m],
-    8 = φ_{N−1} − φ_0, 9 = φ_0, 10 = smallest step in φ.
+    :func:`lwrad.engine.nufft.spread`, ``scratch`` (n_grid + 2·msp, 12)). The
+    value and slope jumps at the two ends, the last phase and the absolute phase
+    go into ``ends[p]``: columns 0–7 = jump of order m ∈ {0, 1} at end
+    e ∈ {first, last} of component i as ends[p, 4·e + 2·i + m], 8 = φ_{N−1} − φ_0,
+    9 = φ_0 (absolute), 10 = smallest step in φ.
     """
     npt = t.shape[0]
     phi = np.empty(npt)
@@ -639,16 +679,7 @@ def far_spread_pixels(
         phase0 = far_amplitudes(n, t, r, beta, bdot, bddot, ig2, c_light, phi, f, fp, dg)
         quartic_coefficients(phi, f, fp, dg, coef)
         dmin = _jumps(phi, coef, False, False, jmp)
-        for k in range(npt):
-            cr = math.cos(omega_ref * phi[k])
-            ci = math.sin(omega_ref * phi[k])
-            xs[k] = dw * phi[k]
-            for i in range(2):
-                for m in range(3):
-                    col = 2 * (3 * i + m)
-                    cs[k, col] = jmp[k, i, m + 2] * cr
-                    cs[k, col + 1] = jmp[k, i, m + 2] * ci
-        spread(xs, cs, scratch, delta, tau, e3)
+        _spread_jumps(phi, jmp, 2, 3, omega_ref, dw, delta, tau, e3, cs, xs, scratch)
         fold(scratch, grids[p])
         for e in range(2):
             k = 0 if e == 0 else npt - 1
@@ -661,31 +692,44 @@ def far_spread_pixels(
 
 
 @nb.njit(nogil=True, cache=True)
-def far_nufft_combine(spec, index, scale, ends, omega, nvec, out):
-    """Far-field integrals from the transformed node sums of :func:`far_spread_pixels`.
+def nufft_node_sums(spec, index, scale, m_first, n_comp, phase0, omega, out):
+    """Integrals from transformed node sums: out[p, j, i] = e^{iω_jφ0_p} Σ_m (−1)^m S_{i,m}/(iω_j)^{m+1}.
 
-    I_i(ω) = e^{iωφ_0} [Σ_{m=2..4} (−1)^m S_{i,m}(ω)/(iω)^{m+1} + end terms of
-    orders 0 and 1], S = spec[p, index[j], c]·scale[j]; z from E·n = 0.
-    out : (P, n_e, 3) complex.
+    S_{i,m}(ω_j) = spec[p, index[j], n_o·i + m − m_first]·scale[j] (n_o orders per
+    component, from m_first); fills components 0 … n_comp − 1 of out (P, n_e, ≥ n_comp).
     """
+    n_o = spec.shape[2] // n_comp
     for p in range(spec.shape[0]):
+        for j in range(omega.shape[0]):
+            w = omega[j]
+            iw = 1.0 / (1j * w)
+            fac0 = iw ** (m_first + 1) * (scale[j] * (-1.0) ** m_first)
+            e_abs = complex(math.cos(w * phase0[p]), math.sin(w * phase0[p]))
+            col = index[j]
+            for i in range(n_comp):
+                acc = 0j
+                fac = fac0
+                for m in range(n_o):
+                    acc += spec[p, col, n_o * i + m] * fac
+                    fac *= -iw
+                out[p, j, i] = acc * e_abs
+
+
+@nb.njit(nogil=True, cache=True)
+def far_nufft_ends(ends, omega, nvec, out):
+    """Add the end terms of :func:`far_spread_pixels` (orders 0 and 1) and E_z from E·n = 0."""
+    for p in range(out.shape[0]):
         n = nvec[p]
         for j in range(omega.shape[0]):
             w = omega[j]
             iw = 1.0 / (1j * w)
             iw2 = iw * iw
-            iw3 = iw2 * iw
             e_last = complex(math.cos(w * ends[p, 8]), math.sin(w * ends[p, 8]))
             e_abs = complex(math.cos(w * ends[p, 9]), math.sin(w * ends[p, 9]))
-            col = index[j]
-            sc = scale[j]
             for i in range(2):
-                acc = (
-                    spec[p, col, 3 * i] - spec[p, col, 3 * i + 1] * iw + spec[p, col, 3 * i + 2] * iw2
-                ) * (sc * iw3)
-                acc += ends[p, 2 * i] * iw - ends[p, 2 * i + 1] * iw2
+                acc = ends[p, 2 * i] * iw - ends[p, 2 * i + 1] * iw2
                 acc += e_last * (ends[p, 4 + 2 * i] * iw - ends[p, 5 + 2 * i] * iw2)
-                out[p, j, i] = acc * e_abs
+                out[p, j, i] += acc * e_abs
             out[p, j, 2] = -(n[0] * out[p, j, 0] + n[1] * out[p, j, 1]) / n[2]
 
 
