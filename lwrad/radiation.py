@@ -460,23 +460,15 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
     factor, diag = F.converged_sampling(
         traj, observer, omega, tolerance, tails=tails, factor=refinement
     )
-    t_nodes = F.sample_times(traj, observer, float(omega.max()), factor)
-    diag["n_samples"] = int(t_nodes.size)
+    # each energy band sampled for its own highest energy (F.energy_bands)
+    bands = F.band_nodes(traj, observer, omega, factor)
+    diag["n_samples"] = int(max(b[1] for b in bands))
+    diag["energy_bands"] = len(bands)
     n_pix = observer.n_pixels
-    if observer.kind == "angular":
-        nodes = F.nodes_only(traj, t_nodes)
-        nvec = observer.directions()
+    targets = observer.directions() if observer.kind == "angular" else observer.points()
 
-        def work(sl):
-            return F.far_field(nodes, nvec[sl], omega, traj.charge)
-    else:
-        nodes, gauss = F.gauss_split(traj, t_nodes)
-        pts = observer.points()
-
-        def work(sl):
-            return F.near_field(
-                nodes, gauss, pts[sl], omega, traj.charge, tails=tails, factor=factor
-            )
+    def work(sl):
+        return F.band_field(bands, targets[sl], omega, traj.charge, tails=tails, factor=factor)
 
     chunks = _pixel_chunks(n_pix)
     field = np.empty((omega.size, n_pix, 3), dtype=complex)
@@ -484,9 +476,7 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
     def place(index, part):  # (P, n_e, 3) per chunk, into the (n_e, pixels, 3) field
         field[:, chunks[index], :] = part.transpose(1, 0, 2)
 
-    run_chunks(
-        work, chunks, workers=n_jobs, backend="threads", on_result=place, keep_results=False
-    )
+    run_chunks(work, chunks, workers=n_jobs, backend="threads", on_result=place, keep_results=False)
     ny, nx = observer.shape
     return field.reshape(omega.size, ny, nx, 3), diag
 

@@ -104,7 +104,41 @@ def _timed_workers(func, warm):
         rec[f"wall_s_{workers}w"] = time.perf_counter() - t0
     rec["speedup_1_to_2"] = rec["wall_s_1w"] / rec["wall_s_2w"]
     rec["wall_s"] = min(rec["wall_s_1w"], rec["wall_s_2w"])
+    # the workload's own peak, before the accuracy reference and the baseline run
+    rec["peak_memory_MB"] = _peak_mb()
     return rec, value
+
+
+def _peak_mb():
+    # ru_maxrss is in kB on Linux: this process's peak resident set (one process per workload)
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def numpy_equal_accuracy(targets, omega, ref_field, tolerance, near=False):
+    """Cost of the plain numpy sum at the coarsest input density that meets ``tolerance``.
+
+    The numpy trapezoid sum is run on the ideal undulator sampled at increasing
+    densities (samples per period) for the given pixels; its flux-density error
+    (|E|², relative to the peak) against the converged reference is recorded for
+    each, and the first density reaching ``tolerance`` — the goal the engine
+    was given — sets the baseline at equal accuracy. Returns
+    (seconds per pixel, samples per period, {density: error}).
+    """
+    import lwrad.ideal
+
+    fn = numpy_near_field if near else numpy_far_field
+    ref_i = np.sum(np.abs(ref_field) ** 2, axis=-1)
+    errors = {}
+    for spp in (8, 12, 16, 24, 32, 48, 64, 96):
+        tr = lwrad.ideal.planar_undulator(ENERGY, PERIOD, N_PERIODS, K, samples_per_period=spp)
+        t0 = time.perf_counter()
+        got = fn(tr, targets, omega)
+        sec = (time.perf_counter() - t0) / len(targets)
+        got_i = np.sum(np.abs(got) ** 2, axis=-1)  # (n_e, pixels) like the reference
+        errors[spp] = float(np.max(np.abs(got_i - ref_i)) / np.max(ref_i))
+        if errors[spp] <= tolerance:
+            return sec, spp, errors
+    return None, None, errors
 
 
 def _subset(n, count):
@@ -220,9 +254,22 @@ def workload_1(quick):
     # accuracy: tolerance 100× tighter and the input path 4× denser, on a subset of pixels
     sub = _subset(npix * npix, 32)
     fine = lwrad.ideal.planar_undulator(ENERGY, PERIOD, N_PERIODS, K, samples_per_period=256)
-    ref = lwrad.radiate(fine, grid.take(sub), energies, tolerance=1e-6).flux_density(CURRENT)
+    ref_res = lwrad.radiate(fine, grid.take(sub), energies, tolerance=1e-6)
+    ref = ref_res.flux_density(CURRENT)
     got = res.flux_density(CURRENT).reshape(nen, -1)[:, sub]
     rec["relative_error"] = _rel_err(got, ref.reshape(nen, -1))
+    # baseline at equal accuracy: the coarsest numpy input density meeting the engine's 1e-4
+    few = np.arange(4)
+    sec, spp, errs = numpy_equal_accuracy(
+        _directions(th, th)[sub[few]],
+        photon_energy_to_omega(energies),
+        ref_res.field.reshape(nen, -1, 3)[:, few],
+        1e-4,
+    )
+    rec["numpy_error_by_samples_per_period"] = errs
+    if sec is not None:
+        rec["numpy_equal_accuracy_samples_per_period"] = spp
+        rec["ratio_vs_numpy_equal_accuracy"] = sec * npix * npix / rec["wall_s_1w"]
     # baseline: numpy direct sum on the same (input) samples, a few pixels, scaled
     dirs = _directions(th, th)[sub[:4]]
     omega = photon_energy_to_omega(energies)
@@ -255,9 +302,22 @@ def workload_2(quick):
     rec["pixel_energies_per_s"] = npix * npix * nen / rec["wall_s"]
     sub = _subset(npix * npix, 8)
     fine = lwrad.ideal.planar_undulator(ENERGY, PERIOD, N_PERIODS, K, samples_per_period=256)
-    ref = lwrad.radiate(fine, screen.take(sub), energies, tolerance=1e-6).flux_density(CURRENT)
+    ref_res = lwrad.radiate(fine, screen.take(sub), energies, tolerance=1e-6)
+    ref = ref_res.flux_density(CURRENT)
     got = res.flux_density(CURRENT).reshape(nen, -1)[:, sub]
     rec["relative_error"] = _rel_err(got, ref.reshape(nen, -1))
+    few = np.arange(2)
+    sec, spp, errs = numpy_equal_accuracy(
+        screen.points()[sub[few]],
+        photon_energy_to_omega(energies),
+        ref_res.field.reshape(nen, -1, 3)[:, few],
+        1e-4,
+        near=True,
+    )
+    rec["numpy_error_by_samples_per_period"] = errs
+    if sec is not None:
+        rec["numpy_equal_accuracy_samples_per_period"] = spp
+        rec["ratio_vs_numpy_equal_accuracy"] = sec * npix * npix / rec["wall_s_1w"]
     pts = screen.points()[sub[:2]]
     t0 = time.perf_counter()
     numpy_near_field(traj, pts, photon_energy_to_omega(energies))
@@ -385,8 +445,7 @@ WORKLOADS = {1: workload_1, 2: workload_2, 3: workload_3, 4: workload_4, 5: work
 
 def _run_one(number, quick):
     rec = WORKLOADS[number](quick)
-    # ru_maxrss is in kB on Linux: the child's own peak resident set (one process per workload)
-    rec["peak_memory_MB"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    rec["peak_memory_with_checks_MB"] = _peak_mb()
     return rec
 
 
