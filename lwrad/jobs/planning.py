@@ -84,6 +84,9 @@ PROCESS_BASELINE = 700_000_000
 OUTPUT_OVERHEAD = 16_000_000
 #: solver scratch per trajectory sample and worker, bytes (16 float64)
 SCRATCH_PER_SAMPLE = 128
+#: NUFFT workspace per photon energy and worker, bytes: 8 far-field pixels × a grid of
+#: 2 points per energy × (12 float64 + 6 complex128 transformed) = 3072, rounded up
+NUFFT_BYTES_PER_ENERGY = 4096
 _FIELD_BYTES = 48  # three complex128 components
 _MOMENT_BYTES = 40  # five float64 intensity moments (Result.moments), kept beside the field
 _HELD_COPIES = 3
@@ -252,6 +255,9 @@ def estimate_memory(
         n_chunk = min(chunk, study.observer.n_pixels)
         scratch = SCRATCH_PER_SAMPLE * int(n_samples.get(study.source, 0))
         source_copy = 13 * 8 * int(n_samples.get(study.source, 0))
+        if "spectra" in groups_of(study.quantities, study.beam_method):
+            # NUFFT grids and their transforms (engine.frequency: a batch of far-field pixels)
+            scratch += NUFFT_BYTES_PER_ENERGY * len(study.photon_energy)
         worker = max(worker, n_chunk * per_pixel + scratch + source_copy)
     if backend == "dask":
         workers_here = 0
