@@ -7,11 +7,17 @@ are reused: the cut's edge term is below 1e-4 for y ≥ 0.1 there).
 
 import numpy as np
 import pytest
+from test_radiation_bend import EC, ENERGY, GAMMA, RHO, per_mrad2, schwinger
 
 from lwrad.engine import frequency as F
+from lwrad.ideal import circular_arc
 from lwrad.observers import AngularGrid
 from lwrad.radiation import radiate
-from test_radiation_bend import EC, arc, per_mrad2, schwinger  # noqa: F401  (arc: fixture)
+
+
+@pytest.fixture(scope="module")
+def arc():
+    return circular_arc(ENERGY, RHO, 40 / GAMMA, n_samples=4001)  # as in test_radiation_bend
 
 
 def test_bands_partition_the_energies_highest_first():
