@@ -61,6 +61,7 @@ __all__ = [
     "far_power_pixels",
     "near_power_pixels",
     "lienard_energy",
+    "tail_times",
 ]
 
 _SERIES_THETA = 1.0  # below: Taylor series of the moments; above: upward recurrence (loss ≤ 4! ε)
@@ -794,6 +795,42 @@ def near_power_pixels(points, h, wg, rg, betag, bdotg, ig2g, c_light, out):
                 s += wg[g] * e2 * nz * kap
             acc += h[k] * s
         out[p] = acc
+
+
+@nb.njit(nogil=True, cache=True)
+def tail_times(v, d, sgn, b, tau_c, ig2, omega_min, step_frac, tail_phase, c_light, out):
+    """Times τ ≥ 0 of one straight-line tail, graded in the distance to closest approach.
+
+    Steps of ``step_frac`` × (distance to the closest-approach point)/v, until
+    ω_min κ (distance/v) ≥ ``tail_phase`` beyond 10 impact parameters past that
+    point (κ of the line seen from the observer). v : (3,) velocity, m/s;
+    d : (3,) observer − line end, m; sgn = +1 forward, −1 backward; b impact
+    parameter, m; tau_c time of closest approach, s; ig2 = 1/γ². Writes ``out``
+    (at most its length) and returns the count, or −1 when it did not close.
+    """
+    speed = math.sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2])
+    ux, uy, uz = v[0] / speed, v[1] / speed, v[2] / speed
+    b_abs = speed / c_light
+    out[0] = 0.0
+    tau = 0.0
+    for i in range(1, out.shape[0]):
+        dist = math.hypot(b, speed * (tau - tau_c))
+        scale = dist / speed
+        tau += step_frac * scale
+        out[i] = tau
+        if tau > tau_c:
+            # from the observer to the charge; the charge moves along +v on both tails
+            rx = sgn * v[0] * tau - d[0]
+            ry = sgn * v[1] * tau - d[1]
+            rz = sgn * v[2] * tau - d[2]
+            rr = math.sqrt(rx * rx + ry * ry + rz * rz)
+            ex = -rx / rr - ux
+            ey = -ry / rr - uy
+            ez = -rz / rr - uz
+            kap = ig2 / (1.0 + b_abs) + 0.5 * b_abs * (ex * ex + ey * ey + ez * ez)
+            if omega_min * kap * scale >= tail_phase and tau > tau_c + 10.0 * b / speed:
+                return i + 1
+    return -1
 
 
 @nb.njit(nogil=True, cache=True)

@@ -366,25 +366,23 @@ def _tail_mesh(p0, v, x, omega_min, h0, forward, factor=1.0):
             "the beam line (e.g. an even number of pixels across a centred screen)"
         )
     b = max(b, 1e-12 * float(np.linalg.norm(d)))
-    taus = [0.0]
-    tau = 0.0
     ig2 = 1.0 - speed * speed / c**2
-    for _ in range(_TAIL_MAX_STEPS):
-        dist = math.hypot(b, speed * (tau - tau_c))
-        scale = dist / speed
-        step = _TAIL_STEP / factor * scale
-        tau += step
-        taus.append(tau)
-        if tau > tau_c:
-            # observer-time scale of the amplitude: distance/v times κ of the line as seen from x
-            r_vec = sgn * v * tau - d  # from observer to the charge
-            rr = float(np.linalg.norm(r_vec))
-            n = -r_vec / rr
-            beta = v / c  # the charge moves along +v on both tails
-            b_abs = speed / c
-            kap = ig2 / (1.0 + b_abs) + 0.5 * b_abs * float(np.sum((n - beta / b_abs) ** 2))
-            if omega_min * kap * scale >= _TAIL_PHASE and tau > tau_c + 10.0 * b / speed:
-                return np.asarray(taus)
+    taus = np.empty(_TAIL_MAX_STEPS + 1)
+    n = K.tail_times(
+        np.ascontiguousarray(v, dtype=float),
+        np.ascontiguousarray(d, dtype=float),
+        sgn,
+        b,
+        tau_c,
+        ig2,
+        omega_min,
+        _TAIL_STEP / factor,
+        _TAIL_PHASE,
+        c,
+        taus,
+    )
+    if n > 0:
+        return taus[:n].copy()
     raise InputError(
         "the straight-line continuation of the path could not be closed within "
         f"{_TAIL_MAX_STEPS} steps; is the lowest photon energy extremely small?"
