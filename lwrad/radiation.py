@@ -458,7 +458,7 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
 
         return fft_field(traj, observer, omega, n_jobs=n_jobs)
     factor, diag = F.converged_sampling(
-        traj, observer, omega, tolerance, tails=tails, factor=refinement
+        traj, observer, omega, tolerance, tails=tails, factor=refinement, workers=n_jobs
     )
     # each energy band sampled for its own highest energy (F.energy_bands)
     bands = F.band_nodes(traj, observer, omega, factor)
@@ -467,16 +467,29 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
     n_pix = observer.n_pixels
     targets = observer.directions() if observer.kind == "angular" else observer.points()
 
-    def work(sl):
-        return F.band_field(bands, targets[sl], omega, traj.charge, tails=tails, factor=factor)
-
     chunks = _pixel_chunks(n_pix)
+    # one level of threads: over pixel chunks, or over the energy bands when there are
+    # fewer chunks than workers (a spectrum at a few pixels)
+    inner = n_jobs if len(chunks) < n_jobs else 1
+
+    def work(sl):
+        return F.band_field(
+            bands, targets[sl], omega, traj.charge, tails=tails, factor=factor, workers=inner
+        )
+
     field = np.empty((omega.size, n_pix, 3), dtype=complex)
 
     def place(index, part):  # (P, n_e, 3) per chunk, into the (n_e, pixels, 3) field
         field[:, chunks[index], :] = part.transpose(1, 0, 2)
 
-    run_chunks(work, chunks, workers=n_jobs, backend="threads", on_result=place, keep_results=False)
+    run_chunks(
+        work,
+        chunks,
+        workers=1 if inner > 1 else n_jobs,
+        backend="threads",
+        on_result=place,
+        keep_results=False,
+    )
     ny, nx = observer.shape
     return field.reshape(omega.size, ny, nx, 3), diag
 

@@ -69,3 +69,11 @@ def test_bands_converge_like_one_band(wide, arc, monkeypatch):
     one = radiate(arc, grid, y * EC)
     assert one.diagnostics["energy_bands"] == 1
     assert np.max(np.abs(one.field - res.field)) < 1e-4 * peak
+
+
+def test_bands_in_threads_are_bit_identical(wide, arc):
+    """A spectrum at one pixel runs its bands in threads with n_jobs > 1: same numbers exactly."""
+    y, res = wide
+    two = radiate(arc, AngularGrid(0.0, 0.0), y * EC, n_jobs=2)
+    assert np.array_equal(two.field, res.field)
+    assert two.diagnostics == res.diagnostics

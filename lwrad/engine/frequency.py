@@ -627,28 +627,35 @@ def band_nodes(traj, observer, omega, factor) -> list:
     return bands
 
 
-def band_field(bands, targets, omega, charge, *, tails=True, factor=1.0):
+def band_field(bands, targets, omega, charge, *, tails=True, factor=1.0, workers=1):
     """The field at ``targets`` (P, 3) for every band of :func:`band_nodes`, shape (P, n_e, 3).
 
     Targets are unit directions (far field, the bands carry no Gauss points) or
-    points on a screen, m.
+    points on a screen, m. With ``workers`` > 1 the bands run in threads (for
+    few pixels and many bands; the result does not depend on it).
     """
 
-    def one(idx, nodes, gauss):
+    def one(band):
+        idx, _, nodes, gauss = band
         if gauss is None:
             return far_field(nodes, targets, omega[idx], charge)
         return near_field(nodes, gauss, targets, omega[idx], charge, tails=tails, factor=factor)
 
     if len(bands) == 1:  # one band: its field is the result
-        idx, _, nodes, gauss = bands[0]
-        return one(idx, nodes, gauss)
+        return one(bands[0])
     out = np.empty((targets.shape[0], omega.size, 3), dtype=complex)
-    for idx, _, nodes, gauss in bands:
-        out[:, idx] = one(idx, nodes, gauss)
+
+    def place(i, part):
+        out[:, bands[i][0]] = part
+
+    from lwrad.parallel import run_chunks
+
+    # bands come highest first: the top octave, about half the work, starts first
+    run_chunks(one, bands, workers=workers, on_result=place, keep_results=False)
     return out
 
 
-def _probe_field(traj, observer, omega, factor, tails):
+def _probe_field(traj, observer, omega, factor, tails, workers=1):
     # the probe pixels' field, computed as radiate() computes the pixels
     px, py = _envelope_probes(observer)
     if observer.kind == "angular":
@@ -656,7 +663,9 @@ def _probe_field(traj, observer, omega, factor, tails):
     else:
         targets = np.stack([px, py, np.full(px.shape, observer.distance)], axis=1)
     bands = band_nodes(traj, observer, omega, factor)
-    field = band_field(bands, targets, omega, traj.charge, tails=tails, factor=factor)
+    field = band_field(
+        bands, targets, omega, traj.charge, tails=tails, factor=factor, workers=workers
+    )
     return field, max(b[1] for b in bands)
 
 
@@ -832,7 +841,7 @@ def _worst(diagnostics) -> dict:
     return worst
 
 
-def converged_sampling(traj, observer, omega, tolerance, *, tails=True, factor=None):
+def converged_sampling(traj, observer, omega, tolerance, *, tails=True, factor=None, workers=1):
     """Choose the refinement factor F by doubling until the probe pixels agree.
 
     The probes are computed as :func:`lwrad.radiation.radiate` computes the
@@ -850,10 +859,10 @@ def converged_sampling(traj, observer, omega, tolerance, *, tails=True, factor=N
         diag = {"refinement_factor": float(factor), "converged": None, "tolerance": tolerance}
         return float(factor), _check_input(traj, observer, omega, tolerance, diag)
     f_now = 1.0
-    e_now, n_now = _probe_field(traj, observer, omega, f_now, tails)
+    e_now, n_now = _probe_field(traj, observer, omega, f_now, tails, workers)
     err = math.inf
     for _ in range(_MAX_REFINE):
-        e_fine, n_fine = _probe_field(traj, observer, omega, 2.0 * f_now, tails)
+        e_fine, n_fine = _probe_field(traj, observer, omega, 2.0 * f_now, tails, workers)
         peak = float(np.max(np.abs(e_fine)))
         err = float(np.max(np.abs(e_now - e_fine))) / peak if peak > 0 else 0.0
         if err <= tolerance:
