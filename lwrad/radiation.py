@@ -692,40 +692,23 @@ def power_density(source, observer, current, *, n_jobs=1, refinement=1.0) -> np.
     total = np.zeros(observer.n_pixels)
     for traj, w in zip(trajs, weights / weights.sum(), strict=True):
         _, g = _power_nodes(traj, refinement)
+        data = K.power_samples(g["h"], wg, g["r"], g["beta"], g["beta_dot"], g["ig2"])
         q = abs(traj.charge)
         if observer.kind == "angular":
             nvec = observer.directions()
 
-            def work(sl, g=g, nvec=nvec):
+            def work(sl, data=data, nvec=nvec):
                 out = np.empty(sl.stop - sl.start)
-                K.far_power_pixels(
-                    np.ascontiguousarray(nvec[sl]),
-                    g["h"],
-                    wg,
-                    g["beta"],
-                    g["beta_dot"],
-                    g["ig2"],
-                    out,
-                )
+                K.far_power_pixels(np.ascontiguousarray(nvec[sl]), data, out)
                 return out
 
             coef = q * q / (16 * math.pi**2 * epsilon_0 * c) * (nvec[:, 2] ** 3)
         else:
             pts = observer.points()
 
-            def work(sl, g=g, pts=pts):
+            def work(sl, data=data, pts=pts):
                 out = np.empty(sl.stop - sl.start)
-                K.near_power_pixels(
-                    np.ascontiguousarray(pts[sl]),
-                    g["h"],
-                    wg,
-                    g["r"],
-                    g["beta"],
-                    g["beta_dot"],
-                    g["ig2"],
-                    c,
-                    out,
-                )
+                K.near_power_pixels(np.ascontiguousarray(pts[sl]), data, c, out)
                 return out
 
             coef = epsilon_0 * c * (q / (4 * math.pi * epsilon_0)) ** 2

@@ -59,6 +59,8 @@ __all__ = [
     "node_spread",
     "nufft_node_sums",
     "far_power_pixels",
+    "power_samples",
+    "POWER_ROWS",
     "near_power_pixels",
     "lienard_energy",
     "tail_times",
@@ -734,67 +736,102 @@ def far_nufft_ends(ends, omega, nvec, out):
             out[p, j, 2] = -(n[0] * out[p, j, 0] + n[1] * out[p, j, 1]) / n[2]
 
 
-@nb.njit(nogil=True, cache=True)
-def far_power_pixels(nvec, h, wg, betag, bdotg, ig2g, out):
+#: rows of the packed power-integral samples (:func:`power_samples`)
+POWER_ROWS = 11
+# Vectorisable: one packed array (one base pointer), no Python division checks
+# (error_model="numpy"; inputs are finite, validated trajectories) and reassociation
+# of the sum; no assumptions about NaN or infinities.
+_VEC = {"nsz", "arcp", "contract", "reassoc"}
+
+
+def power_samples(h, wg, r, beta, bdot, ig2):
+    """Pack Gauss-point samples (M, G, …) into the (POWER_ROWS, M·G) array of the power kernels.
+
+    Rows: weight h·wg, r (3), β (3), β̇ (3), 1/γ².
+    """
+    m, g = beta.shape[:2]
+    out = np.empty((POWER_ROWS, m * g))
+    out[0] = (h[:, None] * wg[None, :]).ravel()
+    out[1:4] = r.reshape(-1, 3).T
+    out[4:7] = beta.reshape(-1, 3).T
+    out[7:10] = bdot.reshape(-1, 3).T
+    out[10] = ig2.ravel()
+    return out
+
+
+@nb.njit(nogil=True, cache=True, inline="always")
+def _kappa_branchless(nx, ny, nz, bx, by, bz, ig2):
+    # _kappa for |β| > 0 (charged particles at the Gauss points move)
+    b = math.sqrt(bx * bx + by * by + bz * bz)
+    ib = 1.0 / b
+    dx = nx - bx * ib
+    dy = ny - by * ib
+    dz = nz - bz * ib
+    return ig2 / (1.0 + b) + 0.5 * b * (dx * dx + dy * dy + dz * dz)
+
+
+@nb.njit(nogil=True, cache=True, fastmath=_VEC, error_model="numpy")
+def far_power_pixels(nvec, data, out):
     """∫ |n×((n−β)×β̇)|²/κ⁵ dt per direction (Jackson 14.38 integrated over time).
 
     Parameters
     ----------
-    nvec : (P, 3). h : (M,) step lengths, s. wg : (2,) Gauss weights on [0, 1].
-    betag, bdotg : (M, 2, 3), ig2g : (M, 2): trajectory at the Gauss points.
+    nvec : (P, 3). data : (POWER_ROWS, M) packed samples (:func:`power_samples`).
     out : (P,) result, 1/s (the time integral of 1/s²).
     """
+    w = data[0]
+    bxs, bys, bzs = data[4], data[5], data[6]
+    axs, ays, azs = data[7], data[8], data[9]
+    ig2 = data[10]
     for p in range(nvec.shape[0]):
         nx, ny, nz = nvec[p, 0], nvec[p, 1], nvec[p, 2]
         acc = 0.0
-        for k in range(h.shape[0]):
-            s = 0.0
-            for g in range(2):
-                bx, by, bz = betag[k, g, 0], betag[k, g, 1], betag[k, g, 2]
-                ax, ay, az = bdotg[k, g, 0], bdotg[k, g, 1], bdotg[k, g, 2]
-                kap = _kappa(nx, ny, nz, bx, by, bz, ig2g[k, g])
-                ndot = nx * ax + ny * ay + nz * az
-                vx = (nx - bx) * ndot - ax * kap
-                vy = (ny - by) * ndot - ay * kap
-                vz = -(nx * vx + ny * vy) / nz  # V ⊥ n exactly
-                k2 = kap * kap
-                s += wg[g] * (vx * vx + vy * vy + vz * vz) / (k2 * k2 * kap)
-            acc += h[k] * s
+        for j in range(w.shape[0]):
+            bx, by, bz = bxs[j], bys[j], bzs[j]
+            ax, ay, az = axs[j], ays[j], azs[j]
+            kap = _kappa_branchless(nx, ny, nz, bx, by, bz, ig2[j])
+            ndot = nx * ax + ny * ay + nz * az
+            vx = (nx - bx) * ndot - ax * kap
+            vy = (ny - by) * ndot - ay * kap
+            vz = -(nx * vx + ny * vy) / nz  # V ⊥ n exactly
+            k2 = kap * kap
+            acc += w[j] * (vx * vx + vy * vy + vz * vz) / (k2 * k2 * kap)
         out[p] = acc
 
 
-@nb.njit(nogil=True, cache=True)
-def near_power_pixels(points, h, wg, rg, betag, bdotg, ig2g, c_light, out):
+@nb.njit(nogil=True, cache=True, fastmath=_VEC, error_model="numpy")
+def near_power_pixels(points, data, c_light, out):
     """∫ |E_rad|² n_z κ dt per point, E_rad per q/(4πε0) (acceleration field only).
 
     Parameters
     ----------
-    points : (P, 3) m. h, wg, rg, betag, bdotg, ig2g : as in :func:`far_power_pixels`.
+    points : (P, 3) m. data : (POWER_ROWS, M) packed samples (:func:`power_samples`).
     out : (P,) result.
     """
+    w = data[0]
+    rxs, rys, rzs = data[1], data[2], data[3]
+    bxs, bys, bzs = data[4], data[5], data[6]
+    axs, ays, azs = data[7], data[8], data[9]
+    ig2 = data[10]
     for p in range(points.shape[0]):
         px, py, pz = points[p, 0], points[p, 1], points[p, 2]
         acc = 0.0
-        for k in range(h.shape[0]):
-            s = 0.0
-            for g in range(2):
-                dx = px - rg[k, g, 0]
-                dy = py - rg[k, g, 1]
-                dz = pz - rg[k, g, 2]
-                rr = math.sqrt(dx * dx + dy * dy + dz * dz)
-                nx, ny, nz = dx / rr, dy / rr, dz / rr
-                bx, by, bz = betag[k, g, 0], betag[k, g, 1], betag[k, g, 2]
-                ax, ay, az = bdotg[k, g, 0], bdotg[k, g, 1], bdotg[k, g, 2]
-                kap = _kappa(nx, ny, nz, bx, by, bz, ig2g[k, g])
-                ndot = nx * ax + ny * ay + nz * az
-                vx = (nx - bx) * ndot - ax * kap
-                vy = (ny - by) * ndot - ay * kap
-                vz = -(nx * vx + ny * vy) / nz
-                k3 = kap * kap * kap
-                e2 = (vx * vx + vy * vy + vz * vz) / (k3 * k3 * c_light * c_light * rr * rr)
-                s += wg[g] * e2 * nz * kap
-            acc += h[k] * s
-        out[p] = acc
+        for j in range(w.shape[0]):
+            dx = px - rxs[j]
+            dy = py - rys[j]
+            dz = pz - rzs[j]
+            inv_r = 1.0 / math.sqrt(dx * dx + dy * dy + dz * dz)
+            nx, ny, nz = dx * inv_r, dy * inv_r, dz * inv_r
+            bx, by, bz = bxs[j], bys[j], bzs[j]
+            ax, ay, az = axs[j], ays[j], azs[j]
+            kap = _kappa_branchless(nx, ny, nz, bx, by, bz, ig2[j])
+            ndot = nx * ax + ny * ay + nz * az
+            vx = (nx - bx) * ndot - ax * kap
+            vy = (ny - by) * ndot - ay * kap
+            vz = -(nx * vx + ny * vy) / nz
+            k3 = kap * kap * kap
+            acc += w[j] * (vx * vx + vy * vy + vz * vz) * (inv_r * inv_r) / (k3 * k3) * nz * kap
+        out[p] = acc / (c_light * c_light)
 
 
 @nb.njit(nogil=True, cache=True)

@@ -81,7 +81,7 @@ class Gridding:
         return scipy.fft.fft(grids.view(np.complex128), axis=1, overwrite_x=True, workers=1)
 
 
-@nb.njit(nogil=True, cache=True, fastmath={"contract"})
+@nb.njit(nogil=True, cache=True, fastmath={"contract"}, error_model="numpy")
 def spread(x, c, scratch, delta, tau, e3):
     """Spread strengths ``c`` (N, S) at points ``x`` (N,) onto ``scratch`` (n_grid + 2·msp, S).
 
