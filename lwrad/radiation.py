@@ -456,7 +456,8 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
     if method == "fft":
         from lwrad.engine.fft import fft_field
 
-        return fft_field(traj, observer, omega, n_jobs=n_jobs)
+        field, diag = fft_field(traj, observer, omega, n_jobs=n_jobs)
+        return field, diag, None
     factor, diag = F.converged_sampling(
         traj, observer, omega, tolerance, tails=tails, factor=refinement, workers=n_jobs
     )
@@ -473,14 +474,18 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
     inner = n_jobs if len(chunks) < n_jobs else 1
 
     def work(sl):
-        return F.band_field(
+        part = F.band_field(
             bands, targets[sl], omega, traj.charge, tails=tails, factor=factor, workers=inner
         )
+        return part, coherency_moments(part)  # the moments in the workers, not after them
 
     field = np.empty((omega.size, n_pix, 3), dtype=complex)
+    moments = np.empty((5, omega.size, n_pix))
 
-    def place(index, part):  # (P, n_e, 3) per chunk, into the (n_e, pixels, 3) field
+    def place(index, result):  # (P, n_e, 3) per chunk, into the (n_e, pixels, 3) field
+        part, mom = result
         field[:, chunks[index], :] = part.transpose(1, 0, 2)
+        moments[:, :, chunks[index]] = mom.transpose(0, 2, 1)
 
     run_chunks(
         work,
@@ -491,7 +496,7 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
         keep_results=False,
     )
     ny, nx = observer.shape
-    return field.reshape(omega.size, ny, nx, 3), diag
+    return field.reshape(omega.size, ny, nx, 3), diag, moments.reshape(5, omega.size, ny, nx)
 
 
 def radiate(
@@ -556,10 +561,12 @@ def radiate(
     omega = photon_energy_to_omega(energies)
     charge = abs(trajs[0].charge)
     if not is_bunch:
-        field, diag = _one_trajectory(
+        field, diag, moments = _one_trajectory(
             trajs[0], observer, omega, tolerance, int(n_jobs), method, refinement, tails
         )
-        return Result(energies, observer, field=field, charge=charge, diagnostics=diag)
+        return Result(
+            energies, observer, field=field, moments=moments, charge=charge, diagnostics=diag
+        )
     return _radiate_bunch(
         source,
         observer,
