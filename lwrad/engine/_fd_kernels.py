@@ -64,6 +64,7 @@ __all__ = [
     "near_power_pixels",
     "lienard_energy",
     "tail_times",
+    "near_pixel_setup",
 ]
 
 _SERIES_THETA = 1.0  # below: Taylor series of the moments; above: upward recurrence (loss ≤ 4! ε)
@@ -868,6 +869,211 @@ def tail_times(v, d, sgn, b, tau_c, ig2, omega_min, step_frac, tail_phase, c_lig
             if omega_min * kap * scale >= tail_phase and tau > tau_c + 10.0 * b / speed:
                 return i + 1
     return -1
+
+
+#: status codes of :func:`near_pixel_setup`
+NEAR_OK = 0
+NEAR_ON_LINE = 1  # the observer lies on a straight continuation of the path
+NEAR_NOT_CLOSED = 2  # a tail mesh did not close within its step limit
+NEAR_SINGULAR = 3  # the observer lies on the path: φ not increasing or the field not finite
+_GAUSS_OFFSET = 0.5 / math.sqrt(3.0)
+
+
+@nb.njit(nogil=True, cache=True)
+def _tail_mesh(p0, bvec, x, sgn, omega_min, step_frac, tail_phase, max_steps, c_light):
+    # times τ ≥ 0 of one straight tail (away from the path end at p0, velocity βc);
+    # returns (τ, status)
+    v = bvec * c_light
+    speed = math.sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2])
+    d = x - p0
+    du = (d[0] * v[0] + d[1] * v[1] + d[2] * v[2]) / speed
+    # τ of closest approach along the tail direction (may be negative: behind the end)
+    tau_c = sgn * du / speed
+    px = d[0] - du * v[0] / speed
+    py = d[1] - du * v[1] / speed
+    pz = d[2] - du * v[2] / speed
+    b = math.sqrt(px * px + py * py + pz * pz)
+    dn = math.sqrt(d[0] * d[0] + d[1] * d[1] + d[2] * d[2])
+    if b <= 1e-12 * dn and tau_c >= 0.0:
+        return np.empty(0), NEAR_ON_LINE
+    b = max(b, 1e-12 * dn)
+    out = np.empty(max_steps + 1)
+    ig2 = 1.0 - speed * speed / (c_light * c_light)
+    n = tail_times(v, d, sgn, b, tau_c, ig2, omega_min, step_frac, tail_phase, c_light, out)
+    if n < 0:
+        return np.empty(0), NEAR_NOT_CLOSED
+    return out[:n].copy(), NEAR_OK
+
+
+@nb.njit(nogil=True, cache=True)
+def _line_phase(p_end, bvec, ig2, x, tau, c_light, out):
+    # exact φ(τ) − φ(0) along the straight line p_end + βcτ seen from x (φ = t + R/c):
+    # with s = vτ, u = s_c − s and b the impact parameter, R = √(b² + u²) and
+    # Δφ = (s/c)[(1−β)/β + (g(u, R) + g(u₀, R₀))/(R + R₀)], g = R − u written as
+    # b²/(R + u) for u > 0, free of the cancellation that t + R/c suffers for γ ≫ 1
+    beta = math.sqrt(bvec[0] * bvec[0] + bvec[1] * bvec[1] + bvec[2] * bvec[2])
+    ux, uy, uz = bvec[0] / beta, bvec[1] / beta, bvec[2] / beta
+    dx, dy, dz = x[0] - p_end[0], x[1] - p_end[1], x[2] - p_end[2]
+    sc = dx * ux + dy * uy + dz * uz
+    ex, ey, ez = dx - sc * ux, dy - sc * uy, dz - sc * uz
+    b2 = ex * ex + ey * ey + ez * ez
+    r0 = math.sqrt(b2 + sc * sc)
+    g0 = b2 / (r0 + abs(sc)) if sc > 0.0 else r0 - sc
+    one_minus = ig2 / (1.0 + beta) / beta
+    for i in range(tau.shape[0]):
+        s = beta * c_light * tau[i]
+        u = sc - s
+        rr = math.sqrt(b2 + u * u)
+        g = b2 / (rr + abs(u)) if u > 0.0 else rr - u
+        out[i] = (s / c_light) * (one_minus + (g + g0) / (rr + r0))
+
+
+@nb.njit(nogil=True, cache=True)
+def _line_samples(times, t_ref, p_ref, bvec, ig2, c_light, tt, rr, bb, gg2, rg, bg, gg, k0, s0):
+    # a straight tail: nodes `times` written from row k0, their steps' Gauss points from
+    # step s0 (positions p_ref + (t − t_ref)βc, β constant, β̇ = 0)
+    for i in range(times.shape[0]):
+        tt[k0 + i] = times[i]
+        for q in range(3):
+            rr[k0 + i, q] = p_ref[q] + (times[i] - t_ref) * bvec[q] * c_light
+            bb[k0 + i, q] = bvec[q]
+        gg2[k0 + i] = ig2
+    for i in range(times.shape[0] - 1):
+        h = times[i + 1] - times[i]
+        for g in range(2):
+            tg = times[i] + h * (0.5 - _GAUSS_OFFSET if g == 0 else 0.5 + _GAUSS_OFFSET)
+            for q in range(3):
+                rg[s0 + i, g, q] = p_ref[q] + (tg - t_ref) * bvec[q] * c_light
+                bg[s0 + i, g, q] = bvec[q]
+            gg[s0 + i, g] = ig2
+
+
+@nb.njit(nogil=True, cache=True)
+def _junction_fix(x, rr, bb, gg2, phi, f, dg, coef, node, forward, c_light):
+    # a path cut inside a field: the field jumps where the straight tail (β̇ = 0) begins,
+    # so the tail's first step starts from the tail-side (velocity-only) value
+    e = np.empty(3)
+    _lw_field(
+        x[0], x[1], x[2], rr[node, 0], rr[node, 1], rr[node, 2],
+        bb[node, 0], bb[node, 1], bb[node, 2], 0.0, 0.0, 0.0, gg2[node], c_light, e,
+    )  # fmt: skip
+    step = node if forward else node - 1
+    d = phi[step + 1] - phi[step]
+    for i in range(3):
+        f0 = e[i] if forward else f[step, i]
+        f1 = f[step + 1, i] if forward else e[i]
+        mean = dg[step, i] / d
+        coef[step, i, 0] = f0
+        coef[step, i, 1] = 6.0 * mean - 4.0 * f0 - 2.0 * f1
+        coef[step, i, 2] = 3.0 * (f0 + f1) - 6.0 * mean
+
+
+@nb.njit(nogil=True, cache=True)
+def near_pixel_setup(
+    x, t, r, beta, bdot, ig2, rg, bg, ag, gg, tails, omega_min, step_frac, tail_phase,
+    max_steps, c_light,
+):  # fmt: skip
+    """Phase and quadratic amplitude pieces of the near-field integral at one point.
+
+    With ``tails`` the path is continued at both ends by its straight lines on
+    meshes from :func:`tail_times`; the tails' phases are the exact straight-line
+    ones (accumulated κ would drift over km-long meshes), anchored at the first
+    path sample. Returns (phi (M,), coef (M−1, 3, 5), φ_0, status): φ relative to
+    φ_0 = t_0 + |x − r_0|/c, the status one of the ``NEAR_*`` codes.
+    """
+    n = t.shape[0]
+    if tails:
+        taus_b, st = _tail_mesh(
+            r[0], beta[0], x, -1.0, omega_min, step_frac, tail_phase, max_steps, c_light
+        )
+        if st != NEAR_OK:
+            return np.empty(0), np.empty((0, 3, 5)), 0.0, st
+        taus_f, st = _tail_mesh(
+            r[n - 1], beta[n - 1], x, 1.0, omega_min, step_frac, tail_phase, max_steps, c_light
+        )
+        if st != NEAR_OK:
+            return np.empty(0), np.empty((0, 3, 5)), 0.0, st
+        nb_ = taus_b.shape[0] - 1
+        nf = taus_f.shape[0] - 1
+    else:
+        nb_ = 0
+        nf = 0
+    npt = nb_ + n + nf
+    tt = np.empty(npt)
+    rr = np.empty((npt, 3))
+    bb = np.empty((npt, 3))
+    aa = np.zeros((npt, 3))
+    gg2 = np.empty(npt)
+    rgg = np.empty((npt - 1, 2, 3))
+    bgg = np.empty((npt - 1, 2, 3))
+    agg = np.zeros((npt - 1, 2, 3))
+    ggg = np.empty((npt - 1, 2))
+    if tails:
+        tb = np.empty(nb_ + 1)
+        for i in range(nb_ + 1):
+            tb[i] = t[0] - taus_b[nb_ - i]
+        _line_samples(
+            tb, t[0], r[0], beta[0], ig2[0], c_light, tt, rr, bb, gg2, rgg, bgg, ggg, 0, 0
+        )
+        tf = np.empty(nf + 1)
+        for i in range(nf + 1):
+            tf[i] = t[n - 1] + taus_f[i]
+        _line_samples(
+            tf, t[n - 1], r[n - 1], beta[n - 1], ig2[n - 1], c_light,
+            tt, rr, bb, gg2, rgg, bgg, ggg, nb_ + n - 1, nb_ + n - 1,
+        )  # fmt: skip
+    for i in range(n):
+        tt[nb_ + i] = t[i]
+        gg2[nb_ + i] = ig2[i]
+        for q in range(3):
+            rr[nb_ + i, q] = r[i, q]
+            bb[nb_ + i, q] = beta[i, q]
+            aa[nb_ + i, q] = bdot[i, q]
+    for i in range(n - 1):
+        for g in range(2):
+            ggg[nb_ + i, g] = gg[i, g]
+            for q in range(3):
+                rgg[nb_ + i, g, q] = rg[i, g, q]
+                bgg[nb_ + i, g, q] = bg[i, g, q]
+                agg[nb_ + i, g, q] = ag[i, g, q]
+    phi = np.empty(npt)
+    f = np.empty((npt, 3))
+    dg = np.empty((npt - 1, 3))
+    phase0 = near_amplitudes(x, tt, rr, bb, aa, gg2, rgg, bgg, agg, ggg, c_light, phi, f, dg)
+    last = nb_ + n - 1
+    if tails:
+        anchor = phi[nb_]
+        for k in range(npt):
+            phi[k] -= anchor
+        dx, dy, dz = x[0] - r[0, 0], x[1] - r[0, 1], x[2] - r[0, 2]
+        phase0 = t[0] + math.sqrt(dx * dx + dy * dy + dz * dz) / c_light
+        lp = np.empty(max(nb_, nf) + 1)
+        tau = np.empty(nb_ + 1)
+        for k in range(nb_ + 1):
+            tau[k] = tt[k] - t[0]
+        _line_phase(r[0], beta[0], ig2[0], x, tau, c_light, lp)
+        for k in range(nb_ + 1):
+            phi[k] = lp[k]
+        base = phi[last]
+        tau = np.empty(nf + 1)
+        for k in range(nf + 1):
+            tau[k] = tt[last + k] - t[n - 1]
+        _line_phase(r[n - 1], beta[n - 1], ig2[n - 1], x, tau, c_light, lp)
+        for k in range(nf + 1):
+            phi[last + k] = base + lp[k]
+    for k in range(npt - 1):
+        if not phi[k + 1] - phi[k] > 0.0:
+            return phi, np.empty((0, 3, 5)), phase0, NEAR_SINGULAR
+    for k in range(npt):
+        for i in range(3):
+            if not math.isfinite(f[k, i]):
+                return phi, np.empty((0, 3, 5)), phase0, NEAR_SINGULAR
+    coef = np.empty((npt - 1, 3, 5))
+    quadratic_coefficients(phi, f, dg, coef)
+    if tails:
+        _junction_fix(x, rr, bb, gg2, phi, f, dg, coef, nb_, False, c_light)
+        _junction_fix(x, rr, bb, gg2, phi, f, dg, coef, last, True, c_light)
+    return phi, coef, phase0, NEAR_OK
 
 
 @nb.njit(nogil=True, cache=True)

@@ -127,6 +127,15 @@ _TAIL_STEP = 0.1  # tail step / (distance to closest-approach point / v), divide
 _TAIL_PHASE = 200.0  # ω_min × amplitude time scale in φ where the tail mesh stops
 _TAIL_MAX_STEPS = 50000
 _GAUSS = 0.5 / math.sqrt(3.0)
+_NEAR_ERRORS = {
+    K.NEAR_ON_LINE: "observer point {0} m lies on the straight continuation of the path: the "
+    "charge would pass through it and the field there is singular; move the pixel off the beam "
+    "line (e.g. an even number of pixels across a centred screen)",
+    K.NEAR_NOT_CLOSED: "the straight-line continuation of the path could not be closed within "
+    "{1} steps; is the lowest photon energy extremely small?",
+    K.NEAR_SINGULAR: "observer point {0} m lies on (or numerically on) the path or its "
+    "straight-line continuation: the field there is singular",
+}
 
 
 def is_uniform(omega: np.ndarray) -> bool:
@@ -347,82 +356,6 @@ def _far_field_nufft(nodes, nvec, omega, out):
     return ends[:, 10] * float(omega.min()) < THETA_NUFFT
 
 
-def _tail_mesh(p0, v, x, omega_min, h0, forward, factor=1.0):
-    """Times τ ≥ 0 (s, away from the path end) of one straight-line tail.
-
-    Graded geometrically in the distance to the line's closest-approach point.
-    """
-    speed = float(np.linalg.norm(v))
-    u = v / speed
-    d = x - p0
-    sgn = 1.0 if forward else -1.0
-    # τ of closest approach along the tail direction (may be negative: behind the end)
-    tau_c = sgn * float(d @ u) / speed
-    b = float(np.linalg.norm(d - (d @ u) * u))
-    if b <= 1e-12 * float(np.linalg.norm(d)) and tau_c >= 0:
-        raise InputError(
-            f"observer point {x.tolist()} m lies on the straight continuation of the path: the "
-            "charge would pass through it and the field there is singular; move the pixel off "
-            "the beam line (e.g. an even number of pixels across a centred screen)"
-        )
-    b = max(b, 1e-12 * float(np.linalg.norm(d)))
-    ig2 = 1.0 - speed * speed / c**2
-    taus = np.empty(_TAIL_MAX_STEPS + 1)
-    n = K.tail_times(
-        np.ascontiguousarray(v, dtype=float),
-        np.ascontiguousarray(d, dtype=float),
-        sgn,
-        b,
-        tau_c,
-        ig2,
-        omega_min,
-        _TAIL_STEP / factor,
-        _TAIL_PHASE,
-        c,
-        taus,
-    )
-    if n > 0:
-        return taus[:n].copy()
-    raise InputError(
-        "the straight-line continuation of the path could not be closed within "
-        f"{_TAIL_MAX_STEPS} steps; is the lowest photon energy extremely small?"
-    )
-
-
-def _line_phase(p_end, beta_vec, ig2, x, tau):
-    """Exact φ(τ) − φ(0) (s) along the straight line p_end + β c τ seen from x, φ = t + R/c.
-
-    With s = vτ, u = s_c − s (longitudinal distance to the closest-approach
-    point) and b the impact parameter, R = √(b² + u²) and
-    Δφ = (s/c) [ (1−β)/β + (g(u, R) + g(u₀, R₀))/(R + R₀) ],  g = R − u
-    written as b²/(R + u) for u > 0 — free of the cancellation that
-    t + R/c suffers for γ ≫ 1.
-    """
-    beta = float(np.linalg.norm(beta_vec))
-    uvec = beta_vec / beta
-    d = x - p_end
-    sc = float(d @ uvec)
-    b2 = float(np.sum((d - sc * uvec) ** 2))
-    s = beta * c * tau
-    u = sc - s
-    rr = np.sqrt(b2 + u * u)
-    r0 = math.sqrt(b2 + sc * sc)
-
-    def g(uu, r):
-        return np.where(uu > 0, b2 / (r + np.abs(uu)), r - uu)
-
-    one_minus = ig2 / (1.0 + beta) / beta
-    return (s / c) * (one_minus + (g(u, rr) + g(np.full_like(u, sc), r0)) / (rr + r0))
-
-
-def _line_gauss(t_nodes, p_ref, t_ref, beta_vec):
-    h = np.diff(t_nodes)
-    tg = np.stack([t_nodes[:-1] + h * (0.5 - _GAUSS), t_nodes[:-1] + h * (0.5 + _GAUSS)], axis=1)
-    rn = p_ref + (t_nodes - t_ref)[:, None] * (beta_vec * c)
-    rg = p_ref + (tg - t_ref)[..., None] * (beta_vec * c)
-    return rn, rg, h
-
-
 def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0):
     """Ẽ (V·s/m) at points (P, 3), shape (P, n_e, 3), complex.
 
@@ -451,104 +384,12 @@ def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0):
     rg, bg, ag, gg = gauss["r"], gauss["beta"], gauss["beta_dot"], gauss["ig2"]
     for ip in range(p):
         x = np.ascontiguousarray(points[ip], dtype=float)
-        if tails:
-            parts_t, parts_r, parts_b, parts_g, parts_rg, parts_bg, parts_gg = (
-                [],
-                [],
-                [],
-                [],
-                [],
-                [],
-                [],
-            )
-            # backward tail: from −∞ to the first sample
-            v0 = beta[0] * c
-            tau = _tail_mesh(r[0], v0, x, omega_min, t[1] - t[0], forward=False, factor=factor)[
-                ::-1
-            ]
-            tb = t[0] - tau
-            rn, rgl, _ = _line_gauss(tb, r[0], t[0], beta[0])
-            parts_t.append(tb[:-1])
-            parts_r.append(rn[:-1])
-            parts_b.append(np.broadcast_to(beta[0], rn[:-1].shape))
-            parts_g.append(np.full(tb.size - 1, ig2[0]))
-            parts_rg.append(rgl)
-            parts_bg.append(np.broadcast_to(beta[0], rgl.shape))
-            parts_gg.append(np.full(rgl.shape[:2], ig2[0]))
-            parts_t.append(t)
-            parts_r.append(r)
-            parts_b.append(beta)
-            parts_g.append(ig2)
-            parts_rg.append(rg)
-            parts_bg.append(bg)
-            parts_gg.append(gg)
-            v1 = beta[-1] * c
-            tau = _tail_mesh(r[-1], v1, x, omega_min, t[-1] - t[-2], forward=True, factor=factor)
-            tf = t[-1] + tau
-            rn, rgl, _ = _line_gauss(tf, r[-1], t[-1], beta[-1])
-            parts_t.append(tf[1:])
-            parts_r.append(rn[1:])
-            parts_b.append(np.broadcast_to(beta[-1], rn[1:].shape))
-            parts_g.append(np.full(tf.size - 1, ig2[-1]))
-            parts_rg.append(rgl)
-            parts_bg.append(np.broadcast_to(beta[-1], rgl.shape))
-            parts_gg.append(np.full(rgl.shape[:2], ig2[-1]))
-            nb_ = tb.size - 1
-            tt = np.concatenate(parts_t)
-            rr = np.concatenate(parts_r)
-            bb = np.concatenate(parts_b)
-            gg2 = np.concatenate(parts_g)
-            aa = np.zeros_like(rr)
-            aa[nb_ : nb_ + t.size] = bdot
-            rgg = np.concatenate(parts_rg)
-            bgg = np.concatenate(parts_bg)
-            ggg = np.concatenate(parts_gg)
-            agg = np.zeros_like(rgg)
-            agg[nb_ : nb_ + t.size - 1] = ag
-        else:
-            tt, rr, bb, aa, gg2, rgg, bgg, agg, ggg = t, r, beta, bdot, ig2, rg, bg, ag, gg
-        npt = tt.size
-        phi = np.empty(npt)
-        f = np.empty((npt, 3))
-        dg = np.empty((npt - 1, 3))
-        phase0 = K.near_amplitudes(
-            x,
-            tt,
-            np.ascontiguousarray(rr),
-            np.ascontiguousarray(bb),
-            np.ascontiguousarray(aa),
-            np.ascontiguousarray(gg2),
-            np.ascontiguousarray(rgg),
-            np.ascontiguousarray(bgg),
-            np.ascontiguousarray(agg),
-            np.ascontiguousarray(ggg),
-            c,
-            phi,
-            f,
-            dg,
-        )
-        if tails:
-            # anchor the phase at the first path sample and put the exact straight-line
-            # phases on the tails (Gauss-accumulated κ would drift over km-long meshes)
-            phi -= phi[nb_]
-            phase0 = t[0] + float(np.linalg.norm(x - r[0])) / c
-            phi[: nb_ + 1] = _line_phase(r[0], beta[0], ig2[0], x, tt[: nb_ + 1] - t[0])
-            last = nb_ + t.size - 1
-            phi[last:] = phi[last] + _line_phase(r[-1], beta[-1], ig2[-1], x, tt[last:] - t[-1])
-        if not np.all(np.diff(phi) > 0) or not np.all(np.isfinite(f)):
-            raise InputError(
-                f"observer point {x.tolist()} m lies on (or numerically on) the path or its "
-                "straight-line continuation: the field there is singular"
-            )
-        pre = np.empty(npt)
-        pim = np.empty(npt)
-        coef = np.empty((npt - 1, 3, 5))
-        K.quadratic_coefficients(phi, f, dg, coef)
-        if tails:
-            # a path cut inside a field: the field jumps where the straight tail (β̇ = 0)
-            # begins, so the tail's first step starts from the tail-side value
-            _junction_fix(x, tt, rr, bb, gg2, phi, f, dg, coef, nb_, forward=False)
-            _junction_fix(x, tt, rr, bb, gg2, phi, f, dg, coef, nb_ + t.size - 1, forward=True)
+        phi, coef, phase0, status = K.near_pixel_setup(
+            x, t, r, beta, bdot, ig2, rg, bg, ag, gg, tails, omega_min, _TAIL_STEP / factor,
+            _TAIL_PHASE, _TAIL_MAX_STEPS, c,
+        )  # fmt: skip
+        if status != K.NEAR_OK:
+            raise InputError(_NEAR_ERRORS[status].format(x.tolist(), _TAIL_MAX_STEPS))
         theta = omega_min * float(np.min(np.diff(phi)))
         if use_nufft and theta >= K._THETA_JUMP_QUAD:
             # the quadratic node form loses ~ε_N/θ³ (ε_N the transform's error): the standard
@@ -574,41 +415,13 @@ def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0):
                 spec, g.index, g.scale, 0, 3, np.array([phase0]), omega, out[ip : ip + 1]
             )
             continue
+        pre = np.empty(phi.size)
+        pim = np.empty(phi.size)
         K.filon_sum(
             phi, coef, omega, uniform, _RESEED, tails, tails, False, phase0, pre, pim, ore, oim
         )
         out[ip] = ore + 1j * oim
     return charge / (4.0 * math.pi * epsilon_0) * out
-
-
-def _junction_fix(x, tt, rr, bb, gg2, phi, f, dg, coef, node, forward):
-    """Redo the quadratic of the tail step at ``node`` with the velocity-only end value."""
-    e = np.empty(3)
-    K._lw_field(
-        x[0],
-        x[1],
-        x[2],
-        rr[node, 0],
-        rr[node, 1],
-        rr[node, 2],
-        bb[node, 0],
-        bb[node, 1],
-        bb[node, 2],
-        0.0,
-        0.0,
-        0.0,
-        gg2[node],
-        c,
-        e,
-    )
-    step = node if forward else node - 1
-    f0 = e if forward else f[step]
-    f1 = f[step + 1] if forward else e
-    d = phi[step + 1] - phi[step]
-    mean = dg[step] / d
-    coef[step, :, 0] = f0
-    coef[step, :, 1] = 6.0 * mean - 4.0 * f0 - 2.0 * f1
-    coef[step, :, 2] = 3.0 * (f0 + f1) - 6.0 * mean
 
 
 def band_nodes(traj, observer, omega, factor) -> list:
