@@ -121,6 +121,8 @@ _MAX_REFINE = 5  # F up to 2**5
 NUFFT_MIN_ENERGIES = 48  # from this many equally spaced energies the far field goes by NUFFT
 THETA_NUFFT = 0.1  # … for pixels whose every step advances by at least 0.1 rad at ω_min
 BAND_RATIO = 2.0  # photon energies computed in octave bands, each sampled for its top
+_SPAN_MARGIN = 0.01  # Type3 band limit: 1 % above the largest estimated φ span
+_TYPE3_MAX_MODES_PER_NODE = 1.0  # Type3 only while its ν grid has at most 1 mode per node
 _NUFFT_BATCH = 8  # far-field pixels per transform batch (workspace ∝ batch × energies)
 _RESEED = 64  # phasor recurrence re-seeded every 64 energies (round-off ~64 ε)
 _TAIL_STEP = 0.1  # tail step / (distance to closest-approach point / v), divided by F
@@ -283,7 +285,7 @@ def far_field(nodes, nvec, omega, charge):
     nvec = np.ascontiguousarray(nvec)
     out = np.empty((p, ne, 3), dtype=complex)
     direct = np.ones(p, dtype=bool)
-    if ne >= NUFFT_MIN_ENERGIES and is_uniform(omega) and p > 0:
+    if ne >= NUFFT_MIN_ENERGIES and p > 0:
         direct = _far_field_nufft(nodes, nvec, omega, out)
     if direct.any():
         out_re = np.empty((int(direct.sum()), ne, 3))
@@ -308,23 +310,40 @@ def far_field(nodes, nvec, omega, charge):
 
 
 def _far_field_nufft(nodes, nvec, omega, out):
-    """Far-field integrals over equally spaced ``omega`` by type-1 NUFFT of the node sums.
+    """Far-field integrals over many energies by NUFFT of the node sums.
 
     The node-sum form of the Filon-type rule (:func:`lwrad.engine._fd_kernels.filon_sum`)
-    is Σ_k e^{iωφ_k} Σ_m (−1)^m J_{m,k}/(iω)^{m+1}; for ω_j = ω_ref + jΔω each
-    order's sum Σ_k J_{m,k} e^{iω_ref φ_k} e^{ijΔωφ_k} is one type-1 transform
-    (:mod:`lwrad.engine.nufft`), accurate to ~1e-11 of Σ|J|. Used for a pixel
-    when every step advances by ω_min Δφ ≥ ``THETA_NUFFT`` (the node form's
-    cancellation then amplifies that error by at most 1/θ⁵ = 1e5). Fills ``out``
-    (without the charge factor) and returns the mask of pixels left for the direct sum.
+    is Σ_k e^{iωφ_k} Σ_m (−1)^m J_{m,k}/(iω)^{m+1}; each order's sum over the nodes is
+    a non-uniform Fourier sum (:mod:`lwrad.engine.nufft`): for ω_j = ω_ref + jΔω one
+    type-1 transform, for any other set of energies a type-1 transform on a uniform
+    grid in ω and interpolation (:class:`~lwrad.engine.nufft.Type3`), both accurate to
+    ~1e-11 of Σ|J|. Used for a pixel when every step advances by ω_min Δφ ≥
+    ``THETA_NUFFT`` (the node form's cancellation then amplifies that error by at most
+    1/θ⁵ = 1e5). Fills ``out`` (without the charge factor) and returns the mask of
+    pixels left for the direct sum.
     """
-    from lwrad.engine.nufft import Gridding
+    from lwrad.engine.nufft import Gridding, Type3
 
     p, ne = nvec.shape[0], omega.size
-    gd = Gridding(ne)
-    dw = float(omega[1] - omega[0])
-    omega_ref = float(omega[0]) - gd.m_lo * dw
-    # ω_j = ω_ref + (j + m_lo) Δω for j = 0 … n_e − 1: exactly the transform's modes
+    t3 = None
+    if is_uniform(omega):
+        gd = Gridding(ne)
+        dw = float(omega[1] - omega[0])
+        omega_ref = float(omega[0]) - gd.m_lo * dw
+        # ω_j = ω_ref + (j + m_lo) Δω for j = 0 … n_e − 1: exactly the transform's modes
+    else:
+        # the φ span of every pixel, t_N − t_0 − n·(r_N − r_0)/c (rounding ~1e-16·2γ² of
+        # it), bounds the band limit of the sums; pixels found longer go to the direct sum
+        t, r = nodes["t"], nodes["r"]
+        spans = (t[-1] - t[0]) - nvec @ (r[-1] - r[0]) / c
+        span = float(spans.max()) * (1.0 + _SPAN_MARGIN)
+        if not (span > 0.0) or Type3.n_modes(omega, span) > _TYPE3_MAX_MODES_PER_NODE * t.size:
+            # the ν grid would outgrow the path (a wide φ span, e.g. an arc seen from the
+            # tangent of its middle, whose ends have large κ): the direct sum is cheaper
+            return np.ones(p, dtype=bool)
+        t3 = Type3(omega, span)
+        gd = t3.grid
+        omega_ref, dw = t3.omega_c, t3.dnu
     batch = min(p, _NUFFT_BATCH)
     grids = gd.empty_grids(batch, 6)  # (x, y) × orders 2, 3, 4
     scratch = gd.scratch(12)
@@ -351,9 +370,17 @@ def _far_field_nufft(nodes, nvec, omega, out):
             ends[sl],
         )
         spec = gd.transform(grids[:n])
-        K.nufft_node_sums(spec, gd.index, gd.scale, 2, 2, ends[sl, 9].copy(), omega, out[sl])
+        phase0 = ends[sl, 9].copy()
+        if t3 is None:
+            K.nufft_node_sums(spec, gd.index, gd.scale, 2, 2, phase0, omega, out[sl])
+        else:
+            values = t3.values(spec)  # (n, n_e, 6): the sums at the energies themselves
+            K.nufft_node_sums(values, np.arange(ne), np.ones(ne), 2, 2, phase0, omega, out[sl])
         K.far_nufft_ends(ends[sl], omega, nvec[sl], out[sl])
-    return ends[:, 10] * float(omega.min()) < THETA_NUFFT
+    left = ends[:, 10] * float(omega.min()) < THETA_NUFFT
+    if t3 is not None:
+        left |= ends[:, 8] > t3.phi_span
+    return left
 
 
 def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0):
