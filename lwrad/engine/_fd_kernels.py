@@ -580,6 +580,18 @@ def _node_sums01(pre, pim, a, b):
 
 
 @nb.njit(nogil=True, cache=True)
+def _far_work(npt):
+    # work arrays of far_amplitudes and quartic_coefficients: φ, f, f', ΔG, coefficients
+    return (
+        np.empty(npt),
+        np.empty((npt, 2)),
+        np.empty((npt, 2)),
+        np.empty((npt - 1, 2)),
+        np.empty((npt - 1, 2, 5)),
+    )
+
+
+@nb.njit(nogil=True, cache=True)
 def far_field_pixels(
     nvec, t, r, beta, bdot, bddot, ig2, c_light, omega, uniform, reseed, out_re, out_im
 ):
@@ -592,11 +604,7 @@ def far_field_pixels(
         integral of an amplitude in 1/s over dt), z from transversality E·n = 0.
     """
     npt = t.shape[0]
-    phi = np.empty(npt)
-    f = np.empty((npt, 2))
-    fp = np.empty((npt, 2))
-    dg = np.empty((npt - 1, 2))
-    coef = np.empty((npt - 1, 2, 5))
+    phi, f, fp, dg, coef = _far_work(npt)
     pre = np.empty(npt)
     pim = np.empty(npt)
     ne = omega.shape[0]
@@ -670,11 +678,7 @@ def far_spread_pixels(
     9 = φ_0 (absolute), 10 = smallest step in φ.
     """
     npt = t.shape[0]
-    phi = np.empty(npt)
-    f = np.empty((npt, 2))
-    fp = np.empty((npt, 2))
-    dg = np.empty((npt - 1, 2))
-    coef = np.empty((npt - 1, 2, 5))
+    phi, f, fp, dg, coef = _far_work(npt)
     jmp = np.empty((npt, 2, 5))
     cs = np.empty((npt, 12))
     xs = np.empty(npt)
@@ -876,7 +880,7 @@ NEAR_OK = 0
 NEAR_ON_LINE = 1  # the observer lies on a straight continuation of the path
 NEAR_NOT_CLOSED = 2  # a tail mesh did not close within its step limit
 NEAR_SINGULAR = 3  # the observer lies on the path: φ not increasing or the field not finite
-_GAUSS_OFFSET = 0.5 / math.sqrt(3.0)
+GAUSS_OFFSET = 0.5 / math.sqrt(3.0)  # two-point Gauss–Legendre on [0, 1]: 1/2 ∓ this
 
 
 @nb.njit(nogil=True, cache=True)
@@ -941,7 +945,7 @@ def _line_samples(times, t_ref, p_ref, bvec, ig2, c_light, tt, rr, bb, gg2, rg, 
     for i in range(times.shape[0] - 1):
         h = times[i + 1] - times[i]
         for g in range(2):
-            tg = times[i] + h * (0.5 - _GAUSS_OFFSET if g == 0 else 0.5 + _GAUSS_OFFSET)
+            tg = times[i] + h * (0.5 - GAUSS_OFFSET if g == 0 else 0.5 + GAUSS_OFFSET)
             for q in range(3):
                 rg[s0 + i, g, q] = p_ref[q] + (tg - t_ref) * bvec[q] * c_light
                 bg[s0 + i, g, q] = bvec[q]

@@ -128,7 +128,7 @@ _RESEED = 64  # phasor recurrence re-seeded every 64 energies (round-off ~64 ε)
 _TAIL_STEP = 0.1  # tail step / (distance to closest-approach point / v), divided by F
 _TAIL_PHASE = 200.0  # ω_min × amplitude time scale in φ where the tail mesh stops
 _TAIL_MAX_STEPS = 50000
-_GAUSS = 0.5 / math.sqrt(3.0)
+_GAUSS = K.GAUSS_OFFSET  # two-point Gauss–Legendre on [0, 1]: 1/2 ∓ 1/(2√3)
 _NEAR_ERRORS = {
     K.NEAR_ON_LINE: "observer point {0} m lies on the straight continuation of the path: the "
     "charge would pass through it and the field there is singular; move the pixel off the beam "
@@ -292,13 +292,7 @@ def far_field(nodes, nvec, omega, charge):
         out_im = np.empty_like(out_re)
         K.far_field_pixels(
             np.ascontiguousarray(nvec[direct]),
-            nodes["t"],
-            nodes["r"],
-            nodes["beta"],
-            nodes["beta_dot"],
-            nodes["beta_ddot"],
-            nodes["ig2"],
-            c,
+            *_far_path(nodes),
             omega,
             is_uniform(omega),
             _RESEED,
@@ -307,6 +301,19 @@ def far_field(nodes, nvec, omega, charge):
         )
         out[direct] = out_re + 1j * out_im
     return out * (charge / (4.0 * math.pi * epsilon_0 * c))
+
+
+def _far_path(nodes):
+    # the trajectory arguments of the far-field kernels, in their order
+    return (
+        nodes["t"],
+        nodes["r"],
+        nodes["beta"],
+        nodes["beta_dot"],
+        nodes["beta_ddot"],
+        nodes["ig2"],
+        c,
+    )
 
 
 def _far_field_nufft(nodes, nvec, omega, out):
@@ -353,13 +360,7 @@ def _far_field_nufft(nodes, nvec, omega, out):
         n = sl.stop - sl.start
         K.far_spread_pixels(
             nvec[sl],
-            nodes["t"],
-            nodes["r"],
-            nodes["beta"],
-            nodes["beta_dot"],
-            nodes["beta_ddot"],
-            nodes["ig2"],
-            c,
+            *_far_path(nodes),
             omega_ref,
             dw,
             gd.delta,
