@@ -458,11 +458,13 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
 
         field, diag = fft_field(traj, observer, omega, n_jobs=n_jobs)
         return field, diag, None
+    kept = {}
     factor, diag = F.converged_sampling(
-        traj, observer, omega, tolerance, tails=tails, factor=refinement, workers=n_jobs
+        traj, observer, omega, tolerance, tails=tails, factor=refinement, workers=n_jobs, keep=kept
     )
-    # each energy band sampled for its own highest energy (F.energy_bands)
-    bands = F.band_nodes(traj, observer, omega, factor)
+    # each energy band sampled for its own highest energy (F.energy_bands); the probes'
+    # bands of the chosen factor when they built them
+    bands = kept.get("bands") or F.band_nodes(traj, observer, omega, factor, n_jobs)
     diag["n_samples"] = int(max(b[1] for b in bands))
     diag["energy_bands"] = len(bands)
     n_pix = observer.n_pixels

@@ -452,20 +452,22 @@ def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0):
     return charge / (4.0 * math.pi * epsilon_0) * out
 
 
-def band_nodes(traj, observer, omega, factor) -> list:
+def band_nodes(traj, observer, omega, factor, workers=1) -> list:
     """Resampled nodes per energy band: [(indices, n_samples, nodes, gauss or None)].
 
     Each band of :func:`energy_bands` is sampled for its own highest energy;
-    ``gauss`` (screens only) holds the two Gauss points of every step.
+    ``gauss`` (screens only) holds the two Gauss points of every step. With
+    ``workers`` > 1 the bands are built in threads (the result does not depend on it).
     """
-    bands = []
-    for idx in energy_bands(omega):
+    from lwrad.parallel import run_chunks
+
+    def build(idx):
         t_nodes = sample_times(traj, observer, float(omega[idx].max()), factor)
         if observer.kind == "angular":
-            bands.append((idx, t_nodes.size, nodes_only(traj, t_nodes), None))
-        else:
-            bands.append((idx, t_nodes.size, *gauss_split(traj, t_nodes)))
-    return bands
+            return (idx, t_nodes.size, nodes_only(traj, t_nodes), None)
+        return (idx, t_nodes.size, *gauss_split(traj, t_nodes))
+
+    return run_chunks(build, energy_bands(omega), workers=workers, backend="threads")
 
 
 def band_field(bands, targets, omega, charge, *, tails=True, factor=1.0, workers=1):
@@ -503,11 +505,11 @@ def _probe_field(traj, observer, omega, factor, tails, workers=1):
         targets = _directions(px, py)
     else:
         targets = np.stack([px, py, np.full(px.shape, observer.distance)], axis=1)
-    bands = band_nodes(traj, observer, omega, factor)
+    bands = band_nodes(traj, observer, omega, factor, workers)
     field = band_field(
         bands, targets, omega, traj.charge, tails=tails, factor=factor, workers=workers
     )
-    return field, max(b[1] for b in bands)
+    return field, bands
 
 
 def nodes_only(traj, t_nodes):
@@ -682,7 +684,9 @@ def _worst(diagnostics) -> dict:
     return worst
 
 
-def converged_sampling(traj, observer, omega, tolerance, *, tails=True, factor=None, workers=1):
+def converged_sampling(
+    traj, observer, omega, tolerance, *, tails=True, factor=None, workers=1, keep=None
+):
     """Choose the refinement factor F by doubling until the probe pixels agree.
 
     The probes are computed as :func:`lwrad.radiation.radiate` computes the
@@ -695,38 +699,44 @@ def converged_sampling(traj, observer, omega, tolerance, *, tails=True, factor=N
     diagnostics : dict
         ``refinement_factor``, ``estimated_relative_error`` (probe max |E_F − E_2F| /
         max |E_2F|), ``n_samples``, ``converged``, ``tolerance``.
+
+    With a dict ``keep`` the bands of :func:`band_nodes` for the returned factor
+    are left in ``keep["bands"]`` (when the probes built them), so that the caller
+    need not build them again.
     """
     if factor is not None:
         diag = {"refinement_factor": float(factor), "converged": None, "tolerance": tolerance}
         return float(factor), _check_input(traj, observer, omega, tolerance, diag)
     f_now = 1.0
-    e_now, n_now = _probe_field(traj, observer, omega, f_now, tails, workers)
+    e_now, b_now = _probe_field(traj, observer, omega, f_now, tails, workers)
     err = math.inf
     for _ in range(_MAX_REFINE):
-        e_fine, n_fine = _probe_field(traj, observer, omega, 2.0 * f_now, tails, workers)
+        e_fine, b_fine = _probe_field(traj, observer, omega, 2.0 * f_now, tails, workers)
         peak = float(np.max(np.abs(e_fine)))
         err = float(np.max(np.abs(e_now - e_fine))) / peak if peak > 0 else 0.0
         if err <= tolerance:
-            diag = {
-                "refinement_factor": f_now,
-                "estimated_relative_error": err,
-                "n_samples": n_now,
-                "converged": True,
-                "tolerance": tolerance,
-            }
-            return f_now, _check_input(traj, observer, omega, tolerance, diag)
-        f_now, e_now, n_now = 2.0 * f_now, e_fine, n_fine
-    warnings.warn(
-        f"radiation integral did not reach the relative tolerance {tolerance:.1e} "
-        f"(estimated error {err:.2e} with {n_now} samples); the result carries this figure",
-        ConvergenceWarning,
-        stacklevel=3,
-    )
+            break
+        f_now, e_now, b_now = 2.0 * f_now, e_fine, b_fine
+    else:
+        warnings.warn(
+            f"radiation integral did not reach the relative tolerance {tolerance:.1e} "
+            f"(estimated error {err:.2e} with {_n_samples(b_now)} samples); the result "
+            "carries this figure",
+            ConvergenceWarning,
+            stacklevel=3,
+        )
+    if keep is not None:
+        keep["bands"] = b_now
     diag = {
         "refinement_factor": f_now,
         "estimated_relative_error": err,
-        "n_samples": n_now,
-        "converged": False,
+        "n_samples": _n_samples(b_now),
+        "converged": err <= tolerance,
         "tolerance": tolerance,
     }
     return f_now, _check_input(traj, observer, omega, tolerance, diag)
+
+
+def _n_samples(bands) -> int:
+    # the sample count reported for a set of bands: the top band's
+    return int(max(b[1] for b in bands))
