@@ -36,7 +36,7 @@ import math
 import numpy as np
 
 from lwrad.constants import c, epsilon_0, hbar, photon_energy_to_omega
-from lwrad.engine.beam_sums import coherency_moments
+from lwrad.engine.beam_sums import coherency_moments, coherency_moments_into
 from lwrad.errors import InputError
 from lwrad.observers import (
     AngularGrid,
@@ -475,28 +475,25 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
     # fewer chunks than workers (a spectrum at a few pixels)
     inner = n_jobs if len(chunks) < n_jobs else 1
 
-    def work(sl):
-        part = F.band_field(
-            bands, targets[sl], omega, traj.charge, tails=tails, factor=factor, workers=inner
-        )
-        return part, coherency_moments(part)  # the moments in the workers, not after them
-
     field = np.empty((omega.size, n_pix, 3), dtype=complex)
     moments = np.empty((5, omega.size, n_pix))
 
-    def place(index, result):  # (P, n_e, 3) per chunk, into the (n_e, pixels, 3) field
-        part, mom = result
-        field[:, chunks[index], :] = part.transpose(1, 0, 2)
-        moments[:, :, chunks[index]] = mom.transpose(0, 2, 1)
+    def work(sl):
+        # the chunk's pixels written in place (disjoint slices: no copy, no serial assembly)
+        part = field[:, sl, :]
+        F.band_field(
+            bands,
+            targets[sl],
+            omega,
+            traj.charge,
+            tails=tails,
+            factor=factor,
+            workers=inner,
+            out=part.transpose(1, 0, 2),
+        )
+        coherency_moments_into(part, moments[:, :, sl])  # in the workers, not after them
 
-    run_chunks(
-        work,
-        chunks,
-        workers=1 if inner > 1 else n_jobs,
-        backend="threads",
-        on_result=place,
-        keep_results=False,
-    )
+    run_chunks(work, chunks, workers=1 if inner > 1 else n_jobs, backend="threads")
     ny, nx = observer.shape
     return field.reshape(omega.size, ny, nx, 3), diag, moments.reshape(5, omega.size, ny, nx)
 

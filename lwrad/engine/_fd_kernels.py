@@ -707,13 +707,14 @@ def nufft_node_sums(spec, index, scale, m_first, n_comp, phase0, omega, out):
     component, from m_first); fills components 0 … n_comp − 1 of out (P, n_e, ≥ n_comp).
     """
     n_o = spec.shape[2] // n_comp
-    for p in range(spec.shape[0]):
-        for j in range(omega.shape[0]):
-            w = omega[j]
-            iw = 1.0 / (1j * w)
-            fac0 = iw ** (m_first + 1) * (scale[j] * (-1.0) ** m_first)
+    # energies outer: the pixels of one energy are neighbours in the caller's (n_e, pixels) field
+    for j in range(omega.shape[0]):
+        w = omega[j]
+        iw = 1.0 / (1j * w)
+        fac0 = iw ** (m_first + 1) * (scale[j] * (-1.0) ** m_first)
+        col = index[j]
+        for p in range(spec.shape[0]):
             e_abs = complex(math.cos(w * phase0[p]), math.sin(w * phase0[p]))
-            col = index[j]
             for i in range(n_comp):
                 acc = 0j
                 fac = fac0
@@ -726,12 +727,12 @@ def nufft_node_sums(spec, index, scale, m_first, n_comp, phase0, omega, out):
 @nb.njit(nogil=True, cache=True)
 def far_nufft_ends(ends, omega, nvec, out):
     """Add the end terms of :func:`far_spread_pixels` (orders 0 and 1) and E_z from E·n = 0."""
-    for p in range(out.shape[0]):
-        n = nvec[p]
-        for j in range(omega.shape[0]):
-            w = omega[j]
-            iw = 1.0 / (1j * w)
-            iw2 = iw * iw
+    for j in range(omega.shape[0]):
+        w = omega[j]
+        iw = 1.0 / (1j * w)
+        iw2 = iw * iw
+        for p in range(out.shape[0]):
+            n = nvec[p]
             e_last = complex(math.cos(w * ends[p, 8]), math.sin(w * ends[p, 8]))
             e_abs = complex(math.cos(w * ends[p, 9]), math.sin(w * ends[p, 9]))
             for i in range(2):

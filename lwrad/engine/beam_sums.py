@@ -27,7 +27,13 @@ import numpy as np
 
 from lwrad.errors import InputError
 
-__all__ = ["IncoherentSum", "CoherentSum", "COHERENCY_COMPONENTS", "coherency_moments"]
+__all__ = [
+    "IncoherentSum",
+    "CoherentSum",
+    "COHERENCY_COMPONENTS",
+    "coherency_moments",
+    "coherency_moments_into",
+]
 
 #: Names of the coherency components accumulated by :class:`IncoherentSum`.
 COHERENCY_COMPONENTS = ("xx", "yy", "zz", "re_xy", "im_xy")
@@ -36,24 +42,29 @@ COHERENCY_COMPONENTS = ("xx", "yy", "zz", "re_xy", "im_xy")
 def coherency_moments(field) -> np.ndarray:
     """(|Ẽ_x|², |Ẽ_y|², |Ẽ_z|², Re Ẽ_xẼ_y*, Im Ẽ_xẼ_y*), shape (5, n_e, ny, nx), of a field (n_e, ny, nx, 3)."""
     field = np.asarray(field)
-    flat = np.ascontiguousarray(field, dtype=np.complex128).reshape(-1, 3)
-    out = np.empty((5, flat.shape[0]))
-    _moments(flat, out)
+    flat = np.ascontiguousarray(field, dtype=np.complex128).reshape(1, -1, 3)
+    out = np.empty((5, 1, flat.shape[1]))
+    coherency_moments_into(flat, out)
     return out.reshape((5,) + field.shape[:-1])
 
 
 @nb.njit(nogil=True, cache=True)
-def _moments(flat, out):
-    # one pass over the field instead of five strided numpy passes and a stack
-    for k in range(flat.shape[0]):
-        x = flat[k, 0]
-        y = flat[k, 1]
-        z = flat[k, 2]
-        out[0, k] = x.real * x.real + x.imag * x.imag
-        out[1, k] = y.real * y.real + y.imag * y.imag
-        out[2, k] = z.real * z.real + z.imag * z.imag
-        out[3, k] = x.real * y.real + x.imag * y.imag
-        out[4, k] = x.imag * y.real - x.real * y.imag
+def coherency_moments_into(field, out):
+    """The moments of :func:`coherency_moments` of ``field`` (A, B, 3) into ``out`` (5, A, B).
+
+    Any strides (views of larger arrays); one pass over the field instead of
+    five strided numpy passes and a stack.
+    """
+    for a in range(field.shape[0]):
+        for b in range(field.shape[1]):
+            x = field[a, b, 0]
+            y = field[a, b, 1]
+            z = field[a, b, 2]
+            out[0, a, b] = x.real * x.real + x.imag * x.imag
+            out[1, a, b] = y.real * y.real + y.imag * y.imag
+            out[2, a, b] = z.real * z.real + z.imag * z.imag
+            out[3, a, b] = x.real * y.real + x.imag * y.imag
+            out[4, a, b] = x.imag * y.real - x.real * y.imag
 
 
 def _check_weight(weight):

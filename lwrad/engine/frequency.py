@@ -273,8 +273,10 @@ def gauss_split(traj, t_nodes):
     return nodes, gauss
 
 
-def far_field(nodes, nvec, omega, charge):
+def far_field(nodes, nvec, omega, charge, out=None):
     """R·Ẽ (V·s) for unit directions ``nvec`` (P, 3), shape (P, n_e, 3), complex.
+
+    Written into ``out`` (P, n_e, 3) complex, any strides, when given.
 
     R Ẽ = q/(4πε0 c) ∫ n×((n−β)×β̇)/κ² e^{iω(t − n·r/c)} dt (Jackson 14.65, e^{+iωt}).
     Many equally spaced energies go through the node sums by NUFFT
@@ -283,7 +285,7 @@ def far_field(nodes, nvec, omega, charge):
     p = nvec.shape[0]
     ne = omega.size
     nvec = np.ascontiguousarray(nvec)
-    out = np.empty((p, ne, 3), dtype=complex)
+    out = np.empty((p, ne, 3), dtype=complex) if out is None else out
     direct = np.ones(p, dtype=bool)
     if ne >= NUFFT_MIN_ENERGIES and p > 0:
         direct = _far_field_nufft(nodes, nvec, omega, out)
@@ -300,7 +302,8 @@ def far_field(nodes, nvec, omega, charge):
             out_im,
         )
         out[direct] = out_re + 1j * out_im
-    return out * (charge / (4.0 * math.pi * epsilon_0 * c))
+    out *= charge / (4.0 * math.pi * epsilon_0 * c)
+    return out
 
 
 def _far_path(nodes):
@@ -384,15 +387,16 @@ def _far_field_nufft(nodes, nvec, omega, out):
     return left
 
 
-def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0):
+def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0, out=None):
     """Ẽ (V·s/m) at points (P, 3), shape (P, n_e, 3), complex.
 
     Ẽ = q/(4πε0) ∫ [(n−β)/(γ²κ²R²) + n×((n−β)×β̇)/(cκ²R)] e^{iω(t + R/c)} dt, with
-    the ends continued by their straight lines when ``tails`` is true.
+    the ends continued by their straight lines when ``tails`` is true. Written into
+    ``out`` (P, n_e, 3) complex, any strides, when given.
     """
     p = points.shape[0]
     ne = omega.size
-    out = np.empty((p, ne, 3), complex)
+    out = np.empty((p, ne, 3), complex) if out is None else out
     ore = np.empty((ne, 3))
     oim = np.empty((ne, 3))
     uniform = is_uniform(omega)
@@ -449,7 +453,8 @@ def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0):
             phi, coef, omega, uniform, _RESEED, tails, tails, False, phase0, pre, pim, ore, oim
         )
         out[ip] = ore + 1j * oim
-    return charge / (4.0 * math.pi * epsilon_0) * out
+    out *= charge / (4.0 * math.pi * epsilon_0)
+    return out
 
 
 def band_nodes(traj, observer, omega, factor, workers=1) -> list:
@@ -470,23 +475,27 @@ def band_nodes(traj, observer, omega, factor, workers=1) -> list:
     return run_chunks(build, energy_bands(omega), workers=workers, backend="threads")
 
 
-def band_field(bands, targets, omega, charge, *, tails=True, factor=1.0, workers=1):
+def band_field(bands, targets, omega, charge, *, tails=True, factor=1.0, workers=1, out=None):
     """The field at ``targets`` (P, 3) for every band of :func:`band_nodes`, shape (P, n_e, 3).
 
     Targets are unit directions (far field, the bands carry no Gauss points) or
     points on a screen, m. With ``workers`` > 1 the bands run in threads (for
-    few pixels and many bands; the result does not depend on it).
+    few pixels and many bands; the result does not depend on it). Written into
+    ``out`` (P, n_e, 3) complex, any strides (e.g. a view of a larger field), when given.
     """
 
-    def one(band):
+    def one(band, into=None):
         idx, _, nodes, gauss = band
         if gauss is None:
-            return far_field(nodes, targets, omega[idx], charge)
-        return near_field(nodes, gauss, targets, omega[idx], charge, tails=tails, factor=factor)
+            return far_field(nodes, targets, omega[idx], charge, out=into)
+        return near_field(
+            nodes, gauss, targets, omega[idx], charge, tails=tails, factor=factor, out=into
+        )
 
     if len(bands) == 1:  # one band: its field is the result
-        return one(bands[0])
-    out = np.empty((targets.shape[0], omega.size, 3), dtype=complex)
+        return one(bands[0], out)
+    if out is None:
+        out = np.empty((targets.shape[0], omega.size, 3), dtype=complex)
 
     def place(i, part):
         out[:, bands[i][0]] = part
