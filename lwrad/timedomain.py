@@ -119,8 +119,8 @@ def _check_n_jobs(n_jobs):
     return n
 
 
-def _refuse_points_on_path(prep, pts, use_rays):
-    dist, where = retarded.path_distance(prep, pts, use_rays)
+def _refuse_points_on_path(prep, pts, use_rays, n_jobs=1):
+    dist, where = retarded.path_distance(prep, pts, use_rays, n_jobs)
     bad = dist <= prep.r_min
     if bad.any():
         i = int(np.argmax(bad))
@@ -200,7 +200,7 @@ def fields(traj, points, t_obs, *, n_jobs=1, outside="continue", return_info=Fal
         raise InputError(f"outside must be one of {_OUTSIDE}, got {outside!r}", location="outside")
     prep = retarded.prepare(traj)
     use_rays = outside == "continue"
-    _refuse_points_on_path(prep, pts, use_rays)
+    _refuse_points_on_path(prep, pts, use_rays, n_jobs)
     e_field, b_field, t_ret, status, iterations = retarded.compute_fields(
         prep, pts, times, continue_outside=use_rays, n_jobs=n_jobs
     )

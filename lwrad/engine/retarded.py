@@ -120,24 +120,23 @@ def _direction(vec):
     return np.zeros(3) if norm == 0.0 else np.asarray(vec, dtype=np.float64) / norm
 
 
-def path_distance(prep: PreparedTrajectory, points: np.ndarray, use_rays: bool):
+def path_distance(prep: PreparedTrajectory, points: np.ndarray, use_rays: bool, n_jobs: int = 1):
     """Closest distance (m) of each point to the path and where it occurs.
 
     Returns ``(distance (P,), where (P,))``; ``where`` is a segment index, −1
-    for the backward continuation ray and N − 1 for the forward one.
+    for the backward continuation ray and N − 1 for the forward one. With
+    ``n_jobs`` > 1 chunks of points run in threads.
     """
     points = np.ascontiguousarray(points, dtype=np.float64)
     dist = np.empty(points.shape[0])
     where = np.empty(points.shape[0], dtype=np.int64)
-    K.path_distance(
-        points,
-        prep.r,
-        -_direction(prep.beta[0]),
-        _direction(prep.beta[-1]),
-        bool(use_rays),
-        dist,
-        where,
-    )
+    rays = (-_direction(prep.beta[0]), _direction(prep.beta[-1]), bool(use_rays))
+
+    def work(sl):
+        K.path_distance(points[sl], prep.r, *rays, dist[sl], where[sl])
+
+    chunks = plan_chunks(points.shape[0], CHUNK_POINTS)
+    run_chunks(work, chunks, workers=n_jobs, backend="threads" if n_jobs > 1 else "serial")
     return dist, where
 
 
