@@ -13,6 +13,7 @@ Usage::
     python scripts/bench.py                 # all workloads
     python scripts/bench.py --workload 1    # one
     python scripts/bench.py --json out.json
+    python scripts/bench.py --workload 1 --profile   # where one worker's time goes
 
 The scenario is the invented "Saltmarsh" ring (2.5 GeV) of the examples.
 """
@@ -94,6 +95,26 @@ def _directions(theta_x, theta_y):
 
 
 REPEAT = 3  # best of 3 per worker count: a shared machine's interference only adds time
+PROFILE = False  # set by --profile: one more one-worker run under cProfile
+PROFILE_TOP = 8
+
+
+def _profile(func):
+    """Top functions by own time of one ``func()`` call: ["share  seconds  file:function"]."""
+    import cProfile
+    import pstats
+
+    prof = cProfile.Profile()
+    prof.enable()
+    func()
+    prof.disable()
+    stats = pstats.Stats(prof).stats  # {(file, line, name): (cc, nc, tottime, cumtime, callers)}
+    total = sum(v[2] for v in stats.values())
+    top = sorted(stats.items(), key=lambda kv: -kv[1][2])[:PROFILE_TOP]
+    return [
+        f"{100 * v[2] / total:5.1f} %  {v[2]:7.3f} s  {os.path.basename(k[0])}:{k[2]}"
+        for k, v in top
+    ]
 
 
 def _timed_workers(func, warm):
@@ -113,6 +134,8 @@ def _timed_workers(func, warm):
     rec["wall_s"] = min(rec["wall_s_1w"], rec["wall_s_2w"])
     # the workload's own peak, before the accuracy reference and the baseline run
     rec["peak_memory_MB"] = _peak_mb()
+    if PROFILE:
+        rec["profile_1w"] = _profile(lambda: func(1))
     return rec, value
 
 
@@ -443,8 +466,8 @@ def workload_5(quick):
     rec.update(timing)
     rec["samples"] = res.diagnostics.get("n_samples")
     rec["energies_per_s"] = nen / rec["wall_s"]
-    ref = lwrad.radiate(arc, grid, energies, tolerance=1e-6).flux_density(CURRENT)
-    rec["relative_error"] = _rel_err(res.flux_density(CURRENT), ref)
+    ref_res = lwrad.radiate(arc, grid, energies, tolerance=1e-6)
+    rec["relative_error"] = _rel_err(res.flux_density(CURRENT), ref_res.flux_density(CURRENT))
     # baseline on the engine's own (resampled) nodes: the input arc is far too coarse for
     # a trapezoid sum at 50 keV; a subset of energies, scaled
     from lwrad.engine import frequency as F
@@ -457,6 +480,30 @@ def workload_5(quick):
     sec_np = time.perf_counter() - t0
     rec["numpy_direct_sum_s_scaled"] = sec_np * nen / len(sub)
     rec["ratio_vs_numpy"] = rec["numpy_direct_sum_s_scaled"] / rec["wall_s_1w"]
+    # equal accuracy: the trapezoid on the engine's node placement made 2×, 4×, … denser
+    # until its flux density on the energy subset meets the engine's 1e-4
+    ref_field = ref_res.field.reshape(nen, 1, 3)[sub]
+    ref_i = np.sum(np.abs(ref_field) ** 2, axis=-1)
+    errors = {}
+    for dens in (1, 2, 4, 8, 16, 32):
+        t_nodes = F.sample_times(arc, grid, float(photon_energy_to_omega(energies.max())), dens)
+        dense = arc.interpolate(t_nodes)
+        t0 = time.perf_counter()
+        got = np.concatenate(
+            [
+                numpy_far_field(dense, np.array([[0.0, 0.0, 1.0]]), photon_energy_to_omega(e4))
+                for e4 in np.array_split(energies[sub], 5)  # 4 energies at a time: bounded memory
+            ]
+        )
+        sec = time.perf_counter() - t0
+        errors[dens] = float(
+            np.max(np.abs(np.sum(np.abs(got) ** 2, axis=-1) - ref_i)) / ref_i.max()
+        )
+        if errors[dens] <= 1e-4:
+            rec["numpy_equal_accuracy_nodes"] = int(t_nodes.size)
+            rec["ratio_vs_numpy_equal_accuracy"] = sec * nen / len(sub) / rec["wall_s_1w"]
+            break
+    rec["numpy_error_by_node_density"] = errors
     return rec
 
 
@@ -476,15 +523,22 @@ def main(argv=None):
     parser.add_argument("--workload", type=int, choices=sorted(WORKLOADS), action="append")
     parser.add_argument("--quick", action="store_true", help="small sizes, for a smoke test")
     parser.add_argument("--json", help="write the records to this JSON file")
+    parser.add_argument(
+        "--profile", action="store_true", help="add the top functions of a one-worker run"
+    )
     parser.add_argument("--child", type=int, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.child:
+        global PROFILE
+        PROFILE = args.profile
         print(json.dumps(_run_one(args.child, args.quick)))
         return 0
     records = []
     for number in args.workload or sorted(WORKLOADS):
-        cmd = [sys.executable, __file__, "--child", str(number)] + (
-            ["--quick"] if args.quick else []
+        cmd = (
+            [sys.executable, __file__, "--child", str(number)]
+            + (["--quick"] if args.quick else [])
+            + (["--profile"] if args.profile else [])
         )
         out = subprocess.run(cmd, capture_output=True, text=True, check=False)
         if out.returncode != 0:
