@@ -52,6 +52,56 @@ def test_wider_gaussian_changes_the_transform_below_its_error_bound():
     assert np.max(np.abs(coarse - b)) > 1e-7 * scale
 
 
+def _transform_poly(x, abc, n_modes, msp=nufft.MSP):
+    gd = nufft.Gridding(n_modes, msp)
+    n_c = abc.shape[2]
+    scratch = gd.scratch(2 * n_c)
+    grids = gd.empty_grids(1, n_c)
+    nufft.spread_poly(x, np.ascontiguousarray(abc).view(float), scratch, gd.delta, gd.tau, gd.e3)
+    nufft.fold(scratch, grids[0])
+    spec = gd.transform(grids)[0]
+    return spec[gd.index] * gd.scale[:, None], np.arange(gd.m_lo, gd.m_lo + n_modes)
+
+
+def _poly_case(n_points, n_comp, seed):
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(-40.0, 90.0, n_points)
+    abc = rng.normal(size=(n_points, 3, n_comp)) + 1j * rng.normal(size=(n_points, 3, n_comp))
+    return x, abc
+
+
+def _poly_scale(abc, n_modes):
+    # Σ|A| + (M/2)Σ|B| + (M/2)²Σ|C|: the size of the terms of T at the outermost mode
+    h = n_modes / 2
+    return np.max(np.sum(np.abs(abc[:, 0]) + h * np.abs(abc[:, 1]) + h * h * np.abs(abc[:, 2]), 0))
+
+
+@pytest.mark.parametrize("n_points, n_modes, n_comp", [(50, 7, 1), (1636, 400, 2), (900, 257, 3)])
+def test_poly_transform_equals_the_direct_sum(n_points, n_modes, n_comp):
+    """Σ e^{imx_k}(A_k + (im)B_k + (im)²C_k) by derivative kernels, against the sum itself.
+
+    Bound as for the plain transform (≈1e-11 of the terms' size); measured ~5e-12. A
+    wrong sign of a derivative term or a misplaced factor 2τ gives O(1).
+    """
+    x, abc = _poly_case(n_points, n_comp, n_points)
+    got, m = _transform_poly(x, abc, n_modes)
+    e = np.exp(1j * np.outer(m, x))
+    im = (1j * m)[:, None]
+    ref = e @ abc[:, 0] + im * (e @ abc[:, 1]) + im**2 * (e @ abc[:, 2])
+    assert np.max(np.abs(got - ref)) <= 1e-10 * _poly_scale(abc, n_modes)
+
+
+def test_poly_transform_wider_gaussian_changes_below_its_error_bound():
+    """Refinement: half-width 12 → 16 changes T by ≤ 1e-10 of the terms' size; 6 is visibly worse."""
+    x, abc = _poly_case(800, 2, 11)
+    a, _ = _transform_poly(x, abc, 256, msp=12)
+    b, _ = _transform_poly(x, abc, 256, msp=16)
+    coarse, _ = _transform_poly(x, abc, 256, msp=6)
+    scale = _poly_scale(abc, 256)
+    assert np.max(np.abs(a - b)) <= 1e-10 * scale
+    assert np.max(np.abs(coarse - b)) > 1e-7 * scale
+
+
 @pytest.fixture(scope="module")
 def cube():
     traj = planar_undulator(2.5e9, 0.025, 12, 1.4, samples_per_period=48)
@@ -77,7 +127,7 @@ def test_far_field_by_nufft_equals_the_direct_sum(cube, n_energies):
     """Same Filon-type rule, two evaluations: agree to 1e-7 of the peak.
 
     Bound: the NUFFT's ~1e-11 of Σ|J| is amplified by the node form's cancellation,
-    at most 1/θ⁵ = 1e5 for steps θ ≥ THETA_NUFFT = 0.1 → 1e-6; measured ~2e-9 here.
+    at most 1/θ⁵ = 1e5 for steps θ ≥ THETA_NUFFT = 0.1 → 1e-6; measured ~8e-10 here.
     A wrong sign, mode or phase gives O(1).
     """
     traj, grid, w1 = cube

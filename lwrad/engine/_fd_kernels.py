@@ -45,7 +45,7 @@ import math
 import numba as nb
 import numpy as np
 
-from lwrad.engine.nufft import fold, spread
+from lwrad.engine.nufft import fold, spread_poly
 
 __all__ = [
     "far_amplitudes",
@@ -626,38 +626,53 @@ def far_field_pixels(
 
 
 @nb.njit(nogil=True, cache=True)
-def _spread_jumps(phi, jmp, m_first, n_orders, omega_ref, dw, delta, tau, e3, cs, xs, scratch):
-    # strengths J_{i,m,k} e^{iω_ref φ_k} of orders m_first … m_first + n_orders − 1 at the
-    # points Δω φ_k; complex c = n_orders·i + m − m_first in real columns 2c, 2c + 1
+def _spread_jumps(phi, jmp, m_first, omega_ref, dw, delta, tau, e3, a, xs, scratch):
+    # Three orders m_first … m_first + 2 (jumps J_a, J_b, J_c) of component i combine into
+    # T_i(ω) = (iω)² S_a − (iω) S_b + S_c, S = Σ_k J_k e^{iωφ_k}; with iω = iω_ref + (im)Δω
+    # and x_k = Δω φ_k, T is Σ_k e^{imx_k}(A + (im)B + (im)²C) with, times e^{iω_ref φ_k},
+    #   A = (iω_ref)² J_a − iω_ref J_b + J_c,  B = Δω (2iω_ref J_a − J_b),  C = Δω² J_a:
+    # one strength per component for nufft.spread_poly; a : (N, 3, 2·C) work array
     npt = phi.shape[0]
     nc = jmp.shape[1]
+    w = omega_ref
     for k in range(npt):
-        cr = math.cos(omega_ref * phi[k])
-        ci = math.sin(omega_ref * phi[k])
+        cr = math.cos(w * phi[k])
+        ci = math.sin(w * phi[k])
         xs[k] = dw * phi[k]
         for i in range(nc):
-            for m in range(n_orders):
-                col = 2 * (n_orders * i + m)
-                cs[k, col] = jmp[k, i, m + m_first] * cr
-                cs[k, col + 1] = jmp[k, i, m + m_first] * ci
-    spread(xs, cs, scratch, delta, tau, e3)
+            ja = jmp[k, i, m_first]
+            jb = jmp[k, i, m_first + 1]
+            jc = jmp[k, i, m_first + 2]
+            ar = jc - w * w * ja  # A = ar + i·ai before the phase
+            ai = -w * jb
+            br = -dw * jb
+            bi = 2.0 * dw * w * ja
+            cc = dw * dw * ja
+            a[k, 0, 2 * i] = ar * cr - ai * ci
+            a[k, 0, 2 * i + 1] = ar * ci + ai * cr
+            a[k, 1, 2 * i] = br * cr - bi * ci
+            a[k, 1, 2 * i + 1] = br * ci + bi * cr
+            a[k, 2, 2 * i] = cc * cr
+            a[k, 2, 2 * i + 1] = cc * ci
+    spread_poly(xs, a, scratch, delta, tau, e3)
 
 
 @nb.njit(nogil=True, cache=True)
 def node_spread(phi, coef, tail_lo, tail_hi, omega_ref, dw, delta, tau, e3, scratch, grid):
     """Node sums of a quadratic rule (orders 0–2, all nodes), spread for a type-1 NUFFT.
 
-    The NUFFT form of :func:`filon_sum`'s node sum for ``quartic=False``: strengths
-    J_{i,m,k} e^{iω_ref φ_k} at the points Δω φ_k, folded into ``grid`` (n_grid,
-    2·3·C) (complex c = 3·i + m; :func:`lwrad.engine.nufft.spread`, ``scratch``
-    (n_grid + 2·msp, 6·C)). Returns the smallest step in φ.
+    The NUFFT form of :func:`filon_sum`'s node sum for ``quartic=False``: the
+    orders combined per component (:func:`_spread_jumps`) at the points Δω φ_k,
+    folded into ``grid`` (n_grid, 2·C) (:func:`lwrad.engine.nufft.spread_poly`,
+    ``scratch`` (n_grid + 2·msp, 2·C)). Returns the smallest step in φ.
     """
     npt = phi.shape[0]
-    jmp = np.empty((npt, coef.shape[1], 5))
+    nc = coef.shape[1]
+    jmp = np.empty((npt, nc, 5))
     dmin = _jumps(phi, coef, tail_lo, tail_hi, jmp)
-    cs = np.empty((npt, scratch.shape[1]))
+    a = np.empty((npt, 3, 2 * nc))
     xs = np.empty(npt)
-    _spread_jumps(phi, jmp, 0, 3, omega_ref, dw, delta, tau, e3, cs, xs, scratch)
+    _spread_jumps(phi, jmp, 0, omega_ref, dw, delta, tau, e3, a, xs, scratch)
     fold(scratch, grid)
     return dmin
 
@@ -668,10 +683,10 @@ def far_spread_pixels(
 ):
     """The far-field node sums of :func:`filon_sum`, spread for a type-1 NUFFT over energies.
 
-    For each direction the quartic's jumps of orders 2–4 (x and y) are the
-    strengths J_k e^{iω_ref φ_k} at the points Δω φ_k, spread and folded into
-    ``grids[p]`` ((n_grid, 12): complex c = 3·i + m − 2 in columns 2c, 2c + 1;
-    :func:`lwrad.engine.nufft.spread`, ``scratch`` (n_grid + 2·msp, 12)). The
+    For each direction the quartic's jumps of orders 2–4 (x and y), combined per
+    component (:func:`_spread_jumps`) at the points Δω φ_k, are spread and folded
+    into ``grids[p]`` ((n_grid, 4): component i in columns 2i, 2i + 1;
+    :func:`lwrad.engine.nufft.spread_poly`, ``scratch`` (n_grid + 2·msp, 4)). The
     value and slope jumps at the two ends, the last phase and the absolute phase
     go into ``ends[p]``: columns 0–7 = jump of order m ∈ {0, 1} at end
     e ∈ {first, last} of component i as ends[p, 4·e + 2·i + m], 8 = φ_{N−1} − φ_0,
@@ -680,14 +695,14 @@ def far_spread_pixels(
     npt = t.shape[0]
     phi, f, fp, dg, coef = _far_work(npt)
     jmp = np.empty((npt, 2, 5))
-    cs = np.empty((npt, 12))
+    a = np.empty((npt, 3, 4))
     xs = np.empty(npt)
     for p in range(nvec.shape[0]):
         n = nvec[p]
         phase0 = far_amplitudes(n, t, r, beta, bdot, bddot, ig2, c_light, phi, f, fp, dg)
         quartic_coefficients(phi, f, fp, dg, coef)
         dmin = _jumps(phi, coef, False, False, jmp)
-        _spread_jumps(phi, jmp, 2, 3, omega_ref, dw, delta, tau, e3, cs, xs, scratch)
+        _spread_jumps(phi, jmp, 2, omega_ref, dw, delta, tau, e3, a, xs, scratch)
         fold(scratch, grids[p])
         for e in range(2):
             k = 0 if e == 0 else npt - 1
@@ -700,28 +715,24 @@ def far_spread_pixels(
 
 
 @nb.njit(nogil=True, cache=True)
-def nufft_node_sums(spec, index, scale, m_first, n_comp, phase0, omega, out):
-    """Integrals from transformed node sums: out[p, j, i] = e^{iω_jφ0_p} Σ_m (−1)^m S_{i,m}/(iω_j)^{m+1}.
+def nufft_node_sums(spec, index, scale, m_first, phase0, omega, out):
+    """Integrals from transformed node sums: out[p, j, i] = e^{iω_jφ0_p} (−1)^{m_first} T_i/(iω_j)^{m_first+3}.
 
-    S_{i,m}(ω_j) = spec[p, index[j], n_o·i + m − m_first]·scale[j] (n_o orders per
-    component, from m_first); fills components 0 … n_comp − 1 of out (P, n_e, ≥ n_comp).
+    T_i(ω_j) = spec[p, index[j], i]·scale[j] is the combination (iω)² S_{m_first} −
+    (iω) S_{m_first+1} + S_{m_first+2} of :func:`_spread_jumps`, so that the sum is
+    Σ_m (−1)^m S_{i,m}/(iω)^{m+1} over the three orders; fills components 0 …
+    spec.shape[2] − 1 of out (P, n_e, ≥ that).
     """
-    n_o = spec.shape[2] // n_comp
+    sign = -1.0 if m_first % 2 else 1.0
     # energies outer: the pixels of one energy are neighbours in the caller's (n_e, pixels) field
     for j in range(omega.shape[0]):
         w = omega[j]
-        iw = 1.0 / (1j * w)
-        fac0 = iw ** (m_first + 1) * (scale[j] * (-1.0) ** m_first)
+        fac = (1.0 / (1j * w)) ** (m_first + 3) * (scale[j] * sign)
         col = index[j]
         for p in range(spec.shape[0]):
             e_abs = complex(math.cos(w * phase0[p]), math.sin(w * phase0[p]))
-            for i in range(n_comp):
-                acc = 0j
-                fac = fac0
-                for m in range(n_o):
-                    acc += spec[p, col, n_o * i + m] * fac
-                    fac *= -iw
-                out[p, j, i] = acc * e_abs
+            for i in range(spec.shape[2]):
+                out[p, j, i] = spec[p, col, i] * fac * e_abs
 
 
 @nb.njit(nogil=True, cache=True)

@@ -323,8 +323,9 @@ def _far_field_nufft(nodes, nvec, omega, out):
     """Far-field integrals over many energies by NUFFT of the node sums.
 
     The node-sum form of the Filon-type rule (:func:`lwrad.engine._fd_kernels.filon_sum`)
-    is Σ_k e^{iωφ_k} Σ_m (−1)^m J_{m,k}/(iω)^{m+1}; each order's sum over the nodes is
-    a non-uniform Fourier sum (:mod:`lwrad.engine.nufft`): for ω_j = ω_ref + jΔω one
+    is Σ_k e^{iωφ_k} Σ_m (−1)^m J_{m,k}/(iω)^{m+1}; times (iω)^5 the three orders form
+    one non-uniform Fourier sum whose strengths are quadratic in the mode
+    (:func:`lwrad.engine.nufft.spread_poly`): for ω_j = ω_ref + jΔω one
     type-1 transform, for any other set of energies a type-1 transform on a uniform
     grid in ω and interpolation (:class:`~lwrad.engine.nufft.Type3`), both accurate to
     ~1e-11 of Σ|J|. Used for a pixel when every step advances by ω_min Δφ ≥
@@ -355,8 +356,8 @@ def _far_field_nufft(nodes, nvec, omega, out):
         gd = t3.grid
         omega_ref, dw = t3.omega_c, t3.dnu
     batch = min(p, _NUFFT_BATCH)
-    grids = gd.empty_grids(batch, 6)  # (x, y) × orders 2, 3, 4
-    scratch = gd.scratch(12)
+    grids = gd.empty_grids(batch, 2)  # (x, y), orders 2, 3, 4 combined
+    scratch = gd.scratch(4)
     ends = np.empty((p, 11))
     for lo in range(0, p, batch):
         sl = slice(lo, min(lo + batch, p))
@@ -376,10 +377,10 @@ def _far_field_nufft(nodes, nvec, omega, out):
         spec = gd.transform(grids[:n])
         phase0 = ends[sl, 9].copy()
         if t3 is None:
-            K.nufft_node_sums(spec, gd.index, gd.scale, 2, 2, phase0, omega, out[sl])
+            K.nufft_node_sums(spec, gd.index, gd.scale, 2, phase0, omega, out[sl])
         else:
-            values = t3.values(spec)  # (n, n_e, 6): the sums at the energies themselves
-            K.nufft_node_sums(values, np.arange(ne), np.ones(ne), 2, 2, phase0, omega, out[sl])
+            values = t3.values(spec)  # (n, n_e, 2): the sums at the energies themselves
+            K.nufft_node_sums(values, np.arange(ne), np.ones(ne), 2, phase0, omega, out[sl])
         K.far_nufft_ends(ends[sl], omega, nvec[sl], out[sl])
     left = ends[:, 10] * float(omega.min()) < THETA_NUFFT
     if t3 is not None:
@@ -410,8 +411,8 @@ def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0, o
         griddings = [Gridding(ne), Gridding(ne, MSP_WIDE)]
         dw = float(omega[1] - omega[0])
         omega_ref = float(omega[0]) - griddings[0].m_lo * dw
-        grids = [g.empty_grids(1, 9) for g in griddings]  # (x, y, z) × orders 0, 1, 2
-        scratches = [g.scratch(18) for g in griddings]
+        grids = [g.empty_grids(1, 3) for g in griddings]  # (x, y, z), orders combined
+        scratches = [g.scratch(6) for g in griddings]
     t, r, beta, bdot, ig2 = nodes["t"], nodes["r"], nodes["beta"], nodes["beta_dot"], nodes["ig2"]
     rg, bg, ag, gg = gauss["r"], gauss["beta"], gauss["beta_dot"], gauss["ig2"]
     for ip in range(p):
@@ -444,7 +445,7 @@ def near_field(nodes, gauss, points, omega, charge, *, tails=True, factor=1.0, o
             )
             spec = g.transform(grids[which])
             K.nufft_node_sums(
-                spec, g.index, g.scale, 0, 3, np.array([phase0]), omega, out[ip : ip + 1]
+                spec, g.index, g.scale, 0, np.array([phase0]), omega, out[ip : ip + 1]
             )
             continue
         pre = np.empty(phi.size)
