@@ -477,6 +477,15 @@ def _one_trajectory(traj, observer, omega, tolerance, n_jobs, method, refinement
 
     field = np.empty((omega.size, n_pix, 3), dtype=complex)
     moments = np.empty((5, omega.size, n_pix))
+    probe = kept.get("probe_field")
+    if probe is not None and np.array_equal(F.probe_targets(observer), targets):
+        # the pixels are the probes (e.g. a spectrum in one direction): the probes' field at
+        # the chosen factor is this field, computed by the same code (band_field)
+        field[...] = probe.transpose(1, 0, 2)
+        coherency_moments_into(field, moments)
+        diag["probe_field_reused"] = True
+        ny, nx = observer.shape
+        return field.reshape(omega.size, ny, nx, 3), diag, moments.reshape(5, omega.size, ny, nx)
 
     def work(sl):
         # the chunk's pixels written in place (disjoint slices: no copy, no serial assembly)

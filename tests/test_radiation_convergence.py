@@ -125,3 +125,29 @@ def test_refinement_chosen_once_reproduces_the_full_call(und, kind):
         for s in plan_chunks(obs.n_pixels, 5)
     ]
     assert np.array_equal(Result.concatenate_pixels(parts, obs).field, full.field)
+
+
+@pytest.mark.parametrize(
+    "observer",
+    [AngularGrid(0.0, 0.0), AngularGrid([-2e-4, 0.0, 2e-4], [-1e-4, 0.0, 1e-4])],
+    ids=["one direction", "3x3 on the probes"],
+)
+def test_probe_field_reused_when_the_pixels_are_the_probes(und, observer):
+    """A spectrum at the probe pixels reuses the probes' field; it must equal a fresh run.
+
+    The fresh run at the same refinement factor skips the probes (refinement=…) and
+    computes the pixels itself: bit-identical fields, since both are the same code.
+    """
+    en = _harmonic_energies(und, 1)
+    res = radiate(und, observer, en)
+    assert res.diagnostics.get("probe_field_reused") is True
+    fresh = radiate(und, observer, en, refinement=res.diagnostics["refinement_factor"])
+    assert "probe_field_reused" not in fresh.diagnostics
+    assert np.array_equal(res.field, fresh.field)
+    assert np.array_equal(res.moments, fresh.moments)
+
+
+def test_probe_field_not_reused_for_other_pixels(und):
+    g = und.gamma[0]
+    res = radiate(und, AngularGrid([0.0, 0.3 / g], 0.0), _harmonic_energies(und, 1))
+    assert "probe_field_reused" not in res.diagnostics

@@ -105,6 +105,7 @@ __all__ = [
     "energy_bands",
     "band_nodes",
     "band_field",
+    "probe_targets",
 ]
 
 THETA_MAX = 2.0  # rad of phase per step at ω_max (Filon rule: amplitude criterion)
@@ -508,17 +509,21 @@ def band_field(bands, targets, omega, charge, *, tails=True, factor=1.0, workers
     return out
 
 
-def _probe_field(traj, observer, omega, factor, tails, workers=1):
-    # the probe pixels' field, computed as radiate() computes the pixels
+def probe_targets(observer) -> np.ndarray:
+    """The probe pixels of :func:`converged_sampling`: unit directions or screen points, (P, 3)."""
     px, py = _envelope_probes(observer)
     if observer.kind == "angular":
-        targets = _directions(px, py)
-    else:
-        targets = np.stack([px, py, np.full(px.shape, observer.distance)], axis=1)
+        return _directions(px, py)
+    return np.stack([px, py, np.full(px.shape, observer.distance)], axis=1)
+
+
+def _probe_field(traj, observer, omega, factor, tails, workers=1):
+    # the probe pixels' field, computed as radiate() computes the pixels
     bands = band_nodes(traj, observer, omega, factor, workers)
     field = band_field(
-        bands, targets, omega, traj.charge, tails=tails, factor=factor, workers=workers
-    )
+        bands, probe_targets(observer), omega, traj.charge, tails=tails, factor=factor,
+        workers=workers,
+    )  # fmt: skip
     return field, bands
 
 
@@ -711,8 +716,9 @@ def converged_sampling(
         max |E_2F|), ``n_samples``, ``converged``, ``tolerance``.
 
     With a dict ``keep`` the bands of :func:`band_nodes` for the returned factor
-    are left in ``keep["bands"]`` (when the probes built them), so that the caller
-    need not build them again.
+    are left in ``keep["bands"]`` and the probes' field (P, n_e, 3) at that factor in
+    ``keep["probe_field"]`` (targets :func:`probe_targets`), when the probes ran, so
+    that the caller need not compute them again.
     """
     if factor is not None:
         diag = {"refinement_factor": float(factor), "converged": None, "tolerance": tolerance}
@@ -737,6 +743,7 @@ def converged_sampling(
         )
     if keep is not None:
         keep["bands"] = b_now
+        keep["probe_field"] = e_now
     diag = {
         "refinement_factor": f_now,
         "estimated_relative_error": err,
