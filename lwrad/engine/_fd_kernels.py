@@ -146,35 +146,42 @@ def far_amplitudes(n, t, r, beta, bdot, bddot, ig2, c_light, phi, f, fp, dg):
     return t[0] - (nx * r[0, 0] + ny * r[0, 1] + nz * r[0, 2]) / c_light
 
 
-@nb.njit(nogil=True, cache=True)
+@nb.njit(nogil=True, cache=True, error_model="numpy")
 def _lw_field(px, py, pz, rx, ry, rz, bx, by, bz, ax, ay, az, ig2, c_light, out):
-    # Liénard–Wiechert field per q/(4πε0) and κ at the retarded point (Jackson 14.14)
+    # Liénard–Wiechert field per q/(4πε0) and κ at the retarded point (Jackson 14.14);
+    # κ as in _kappa, with |β|, β̂ and 1/R formed once (an observer on the path gives
+    # non-finite values, which the callers refuse)
     dx = px - rx
     dy = py - ry
     dz = pz - rz
     rr = math.sqrt(dx * dx + dy * dy + dz * dz)
-    nx, ny, nz = dx / rr, dy / rr, dz / rr
-    kap = _kappa(nx, ny, nz, bx, by, bz, ig2)
+    inv_r = 1.0 / rr
+    nx, ny, nz = dx * inv_r, dy * inv_r, dz * inv_r
     b = math.sqrt(bx * bx + by * by + bz * bz)
     # n − β = (n − β̂) + β̂ (1 − |β|): keeps the small z component accurate
     omb = ig2 / (1.0 + b)
     if b > 0.0:
-        mx = nx - bx / b + bx / b * omb
-        my = ny - by / b + by / b * omb
-        mz = nz - bz / b + bz / b * omb
+        inv_b = 1.0 / b
+        ux, uy, uz = bx * inv_b, by * inv_b, bz * inv_b
+        ex, ey, ez = nx - ux, ny - uy, nz - uz
+        kap = omb + 0.5 * b * (ex * ex + ey * ey + ez * ez)
+        mx = ex + ux * omb
+        my = ey + uy * omb
+        mz = ez + uz * omb
     else:
+        kap = 1.0
         mx, my, mz = nx, ny, nz
     ndot = nx * ax + ny * ay + nz * az
     inv3 = 1.0 / (kap * kap * kap)
-    cv = ig2 * inv3 / (rr * rr)
-    ca = inv3 / (c_light * rr)
+    cv = ig2 * inv3 * inv_r * inv_r
+    ca = inv3 * inv_r / c_light
     out[0] = mx * cv + (mx * ndot - ax * kap) * ca
     out[1] = my * cv + (my * ndot - ay * kap) * ca
     out[2] = mz * cv + (mz * ndot - az * kap) * ca
     return kap, rr
 
 
-@nb.njit(nogil=True, cache=True)
+@nb.njit(nogil=True, cache=True, error_model="numpy")
 def near_amplitudes(x, t, r, beta, bdot, ig2, rg, betag, bdotg, ig2g, c_light, phi, f, dg):
     """Near-field phase, amplitude (the time-domain field) and step integrals.
 
@@ -965,13 +972,14 @@ def _line_samples(times, t_ref, p_ref, bvec, ig2, c_light, tt, rr, bb, gg2, rg, 
 
 
 @nb.njit(nogil=True, cache=True)
-def _junction_fix(x, rr, bb, gg2, phi, f, dg, coef, node, forward, c_light):
+def _junction_fix(x, p_end, b_end, ig2_end, phi, f, dg, coef, node, forward, c_light):
     # a path cut inside a field: the field jumps where the straight tail (β̇ = 0) begins,
-    # so the tail's first step starts from the tail-side (velocity-only) value
+    # so the tail's first step starts from the tail-side (velocity-only) value at the
+    # path end (p_end, b_end, ig2_end), which is node ``node``
     e = np.empty(3)
     _lw_field(
-        x[0], x[1], x[2], rr[node, 0], rr[node, 1], rr[node, 2],
-        bb[node, 0], bb[node, 1], bb[node, 2], 0.0, 0.0, 0.0, gg2[node], c_light, e,
+        x[0], x[1], x[2], p_end[0], p_end[1], p_end[2],
+        b_end[0], b_end[1], b_end[2], 0.0, 0.0, 0.0, ig2_end, c_light, e,
     )  # fmt: skip
     step = node if forward else node - 1
     d = phi[step + 1] - phi[step]
@@ -982,6 +990,24 @@ def _junction_fix(x, rr, bb, gg2, phi, f, dg, coef, node, forward, c_light):
         coef[step, i, 0] = f0
         coef[step, i, 1] = 6.0 * mean - 4.0 * f0 - 2.0 * f1
         coef[step, i, 2] = 3.0 * (f0 + f1) - 6.0 * mean
+
+
+@nb.njit(nogil=True, cache=True)
+def _tail_amplitudes(x, times, t_ref, p_ref, bvec, ig2, c_light, phi, f, dg):
+    # near_amplitudes of one straight tail (β̇ = 0) on its mesh ``times``, into phi, f, dg
+    m = times.shape[0]
+    tt = np.empty(m)
+    rr = np.empty((m, 3))
+    bb = np.empty((m, 3))
+    gg2 = np.empty(m)
+    rg = np.empty((m - 1, 2, 3))
+    bg = np.empty((m - 1, 2, 3))
+    gg = np.empty((m - 1, 2))
+    _line_samples(times, t_ref, p_ref, bvec, ig2, c_light, tt, rr, bb, gg2, rg, bg, gg, 0, 0)
+    near_amplitudes(
+        x, tt, rr, bb, np.zeros((m, 3)), gg2, rg, bg, np.zeros((m - 1, 2, 3)), gg, c_light,
+        phi, f, dg,
+    )  # fmt: skip
 
 
 @nb.njit(nogil=True, cache=True)
@@ -1015,65 +1041,42 @@ def near_pixel_setup(
         nb_ = 0
         nf = 0
     npt = nb_ + n + nf
-    tt = np.empty(npt)
-    rr = np.empty((npt, 3))
-    bb = np.empty((npt, 3))
-    aa = np.zeros((npt, 3))
-    gg2 = np.empty(npt)
-    rgg = np.empty((npt - 1, 2, 3))
-    bgg = np.empty((npt - 1, 2, 3))
-    agg = np.zeros((npt - 1, 2, 3))
-    ggg = np.empty((npt - 1, 2))
+    phi = np.empty(npt)
+    f = np.empty((npt, 3))
+    dg = np.empty((npt - 1, 3))
+    last = nb_ + n - 1
     if tails:
+        # the tails first: the path's own values at the two junction nodes overwrite theirs
         tb = np.empty(nb_ + 1)
         for i in range(nb_ + 1):
             tb[i] = t[0] - taus_b[nb_ - i]
-        _line_samples(
-            tb, t[0], r[0], beta[0], ig2[0], c_light, tt, rr, bb, gg2, rgg, bgg, ggg, 0, 0
+        _tail_amplitudes(
+            x, tb, t[0], r[0], beta[0], ig2[0], c_light, phi[: nb_ + 1], f[: nb_ + 1], dg[:nb_]
         )
         tf = np.empty(nf + 1)
         for i in range(nf + 1):
             tf[i] = t[n - 1] + taus_f[i]
-        _line_samples(
-            tf, t[n - 1], r[n - 1], beta[n - 1], ig2[n - 1], c_light,
-            tt, rr, bb, gg2, rgg, bgg, ggg, nb_ + n - 1, nb_ + n - 1,
+        _tail_amplitudes(
+            x, tf, t[n - 1], r[n - 1], beta[n - 1], ig2[n - 1], c_light,
+            phi[last:], f[last:], dg[last:],
         )  # fmt: skip
-    for i in range(n):
-        tt[nb_ + i] = t[i]
-        gg2[nb_ + i] = ig2[i]
-        for q in range(3):
-            rr[nb_ + i, q] = r[i, q]
-            bb[nb_ + i, q] = beta[i, q]
-            aa[nb_ + i, q] = bdot[i, q]
-    for i in range(n - 1):
-        for g in range(2):
-            ggg[nb_ + i, g] = gg[i, g]
-            for q in range(3):
-                rgg[nb_ + i, g, q] = rg[i, g, q]
-                bgg[nb_ + i, g, q] = bg[i, g, q]
-                agg[nb_ + i, g, q] = ag[i, g, q]
-    phi = np.empty(npt)
-    f = np.empty((npt, 3))
-    dg = np.empty((npt - 1, 3))
-    phase0 = near_amplitudes(x, tt, rr, bb, aa, gg2, rgg, bgg, agg, ggg, c_light, phi, f, dg)
-    last = nb_ + n - 1
+    # the path in place (no copy of its samples): φ from 0 at its first sample
+    phase0 = near_amplitudes(
+        x, t, r, beta, bdot, ig2, rg, bg, ag, gg, c_light,
+        phi[nb_ : last + 1], f[nb_ : last + 1], dg[nb_:last],
+    )  # fmt: skip
     if tails:
-        anchor = phi[nb_]
-        for k in range(npt):
-            phi[k] -= anchor
-        dx, dy, dz = x[0] - r[0, 0], x[1] - r[0, 1], x[2] - r[0, 2]
-        phase0 = t[0] + math.sqrt(dx * dx + dy * dy + dz * dz) / c_light
         lp = np.empty(max(nb_, nf) + 1)
         tau = np.empty(nb_ + 1)
         for k in range(nb_ + 1):
-            tau[k] = tt[k] - t[0]
+            tau[k] = tb[k] - t[0]
         _line_phase(r[0], beta[0], ig2[0], x, tau, c_light, lp)
         for k in range(nb_ + 1):
             phi[k] = lp[k]
         base = phi[last]
         tau = np.empty(nf + 1)
         for k in range(nf + 1):
-            tau[k] = tt[last + k] - t[n - 1]
+            tau[k] = tf[k] - t[n - 1]
         _line_phase(r[n - 1], beta[n - 1], ig2[n - 1], x, tau, c_light, lp)
         for k in range(nf + 1):
             phi[last + k] = base + lp[k]
@@ -1087,8 +1090,8 @@ def near_pixel_setup(
     coef = np.empty((npt - 1, 3, 5))
     quadratic_coefficients(phi, f, dg, coef)
     if tails:
-        _junction_fix(x, rr, bb, gg2, phi, f, dg, coef, nb_, False, c_light)
-        _junction_fix(x, rr, bb, gg2, phi, f, dg, coef, last, True, c_light)
+        _junction_fix(x, r[0], beta[0], ig2[0], phi, f, dg, coef, nb_, False, c_light)
+        _junction_fix(x, r[n - 1], beta[n - 1], ig2[n - 1], phi, f, dg, coef, last, True, c_light)
     return phi, coef, phase0, NEAR_OK
 
 
