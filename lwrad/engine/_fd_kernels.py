@@ -636,8 +636,8 @@ def far_field_pixels(
 _PHASOR_RESEED = 32
 #: the step e^{iωΔφ} by its Taylor series (to d^17: ≲ 1e-19 at the bound) below this phase
 _PHASOR_SMALL_STEP = 0.6
-_COS_TAYLOR = np.array([(-1.0) ** j / math.factorial(2 * j) for j in range(9)])
-_SIN_TAYLOR = np.array([(-1.0) ** j / math.factorial(2 * j + 1) for j in range(9)])
+_COS_TAYLOR = _INV_FACT[0:18:2] * (-1.0) ** np.arange(9)  # (−1)^j/(2j)!
+_SIN_TAYLOR = _INV_FACT[1:18:2] * (-1.0) ** np.arange(9)  # (−1)^j/(2j+1)!
 
 
 @nb.njit(nogil=True, cache=True, error_model="numpy")
